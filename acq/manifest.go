@@ -17,12 +17,12 @@ import (
 
 // File names and format identifiers of the acquisition folder.
 const (
-	ManifestName  = "acquisition.yaml"
-	FormatV1      = "celerity.acquisition/1"
-	channelsName  = "channels.npy"
-	delaysName    = "firing_delays.npy"
-	weightsName   = "firing_weights.npy"
-	maxManifest   = 8 << 20
+	ManifestName = "acquisition.yaml"
+	FormatV1     = "celerity.acquisition/1"
+	channelsName = "channels.npy"
+	delaysName   = "firing_delays.npy"
+	weightsName  = "firing_weights.npy"
+	maxManifest  = 8 << 20
 )
 
 // LoadOptions tune Load.
