@@ -1,0 +1,173 @@
+package sim
+
+import (
+	"fmt"
+	"runtime"
+	"sync"
+
+	"celerity/acq"
+)
+
+// Simulate runs the forward model and returns the RF acquisition.
+//
+// Work is split so that the result does not depend on the number of workers:
+// with many events, each event is simulated by one worker; with few, the
+// scatterers of each event are split into a fixed number of blocks whose
+// accumulators are summed in a fixed order.
+func Simulate(cfg *Config) (*acq.Acquisition, error) {
+	if err := cfg.Validate(); err != nil {
+		return nil, err
+	}
+	p := newPlan(cfg)
+	workers := cfg.Workers
+	if workers <= 0 {
+		workers = runtime.GOMAXPROCS(0)
+	}
+	maxBytes := cfg.MaxBytes
+	if maxBytes <= 0 {
+		maxBytes = 6 << 30
+	}
+	outBytes := int64(p.ne) * int64(p.n) * int64(p.ns) * 4
+	accBytes := int64(p.n) * int64(p.accLen) * 8
+	budget := maxBytes - outBytes - int64(max(workers, blocks))*accBytes
+	if budget <= 1<<20 {
+		return nil, fmt.Errorf("simulation needs %d MiB for channel data and accumulators, over the %d MiB cap",
+			(outBytes+int64(max(workers, blocks))*accBytes)>>20, maxBytes>>20)
+	}
+	// Scatterer chunks bound the path table (12 bytes per scatterer and element).
+	chunk := len(cfg.Scatterers)
+	for chunk > 1 && int64(chunk)*int64(p.n)*12 > budget/2 {
+		chunk = (chunk + 1) / 2
+	}
+	out := make([]float32, p.ne*p.n*p.ns)
+	nChunks := 0
+	if len(cfg.Scatterers) > 0 {
+		nChunks = (len(cfg.Scatterers) + chunk - 1) / chunk
+	}
+	total := nChunks * p.ne
+	done := 0
+	var mu sync.Mutex
+	report := func() {
+		mu.Lock()
+		done++
+		d := done
+		mu.Unlock()
+		if cfg.Progress != nil {
+			cfg.Progress(d, total)
+		}
+	}
+	per := p.n * p.ns
+	for c0 := 0; c0 < len(cfg.Scatterers); c0 += chunk {
+		sc := cfg.Scatterers[c0:min(c0+chunk, len(cfg.Scatterers))]
+		tau := make([]float32, len(sc)*p.n)
+		ph := make([]complex64, len(sc)*p.n)
+		parallelRange(len(sc), workers, func(lo, hi int) {
+			tr := newTracer(&cfg.Medium)
+			for s := lo; s < hi; s++ {
+				p.fillPaths(tr, sc[s], tau[s*p.n:(s+1)*p.n], ph[s*p.n:(s+1)*p.n])
+			}
+		})
+		amp := make([]float32, len(sc))
+		for i, s := range sc {
+			amp[i] = float32(s.Amp)
+		}
+		run := func(d *depositor, acc *accumulator, lo, hi int) {
+			for s := lo; s < hi; s++ {
+				d.scatterer(acc, tau[s*p.n:(s+1)*p.n], ph[s*p.n:(s+1)*p.n], amp[s])
+			}
+		}
+		if p.ne >= blocks {
+			queue(p.ne, workers, func() func(e int) {
+				acc := newAcc(p)
+				return func(e int) {
+					acc.clear()
+					run(newDepositor(p, e), acc, 0, len(sc))
+					p.filter(acc, out[e*per:(e+1)*per])
+					report()
+				}
+			})
+			continue
+		}
+		accs := make([]*accumulator, blocks)
+		for b := range accs {
+			accs[b] = newAcc(p)
+		}
+		for e := 0; e < p.ne; e++ {
+			queue(blocks, workers, func() func(b int) {
+				d := newDepositor(p, e)
+				return func(b int) {
+					accs[b].clear()
+					run(d, accs[b], b*len(sc)/blocks, (b+1)*len(sc)/blocks)
+				}
+			})
+			for b := 1; b < blocks; b++ {
+				accs[0].add(accs[b])
+			}
+			p.filter(accs[0], out[e*per:(e+1)*per])
+			report()
+		}
+	}
+	if cfg.NoiseSNRDB != nil {
+		addNoise(out, p, cfg.Seed, *cfg.NoiseSNRDB)
+	}
+	a := &acq.Acquisition{
+		Description:     cfg.Description,
+		Probe:           cfg.Probe,
+		SamplingRateHz:  cfg.SamplingRateHz,
+		StartTimeS:      cfg.StartTimeS,
+		AssumedSpeedMPS: cfg.AssumedSpeedMPS,
+		Kind:            acq.RF,
+		Events:          cfg.Events,
+		NumSamples:      cfg.NumSamples,
+		RF:              out,
+	}
+	return a, a.Validate()
+}
+
+// blocks is the fixed number of scatterer blocks per event when events are
+// few; fixing it keeps the result independent of the number of workers.
+const blocks = 8
+
+// parallelRange splits [0, n) into contiguous ranges, one per worker.
+func parallelRange(n, workers int, f func(lo, hi int)) {
+	if n == 0 {
+		return
+	}
+	workers = max(1, min(workers, n))
+	var wg sync.WaitGroup
+	for w := 0; w < workers; w++ {
+		lo, hi := w*n/workers, (w+1)*n/workers
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			f(lo, hi)
+		}()
+	}
+	wg.Wait()
+}
+
+// queue runs items 0..n-1 on a pool of workers; each worker gets its own
+// state from mk.
+func queue(n, workers int, mk func() func(i int)) {
+	var next int
+	var mu sync.Mutex
+	var wg sync.WaitGroup
+	for w := 0; w < max(1, min(workers, n)); w++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			f := mk()
+			for {
+				mu.Lock()
+				i := next
+				next++
+				mu.Unlock()
+				if i >= n {
+					return
+				}
+				f(i)
+			}
+		}()
+	}
+	wg.Wait()
+}
