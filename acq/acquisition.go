@@ -50,6 +50,36 @@ func (l Label) String() string {
 	return ""
 }
 
+// validate checks label i of an acquisition with n elements against the
+// ranges the manifest reader accepts, so that a saved label always reads back.
+func (l Label) validate(i, n int) error {
+	set := 0
+	if l.PlaneWaveDeg != nil {
+		set++
+		if v := *l.PlaneWaveDeg; !(math.Abs(v) < 90) {
+			return fmt.Errorf("transmit.labels[%d].plane_wave_deg: must be between -90 and 90, got %g", i, v)
+		}
+	}
+	if l.VirtualSourceM != nil {
+		set++
+		for k, v := range l.VirtualSourceM {
+			if math.IsNaN(v) || math.IsInf(v, 0) {
+				return fmt.Errorf("transmit.labels[%d].virtual_source_m[%d]: must be finite, got %g", i, k, v)
+			}
+		}
+	}
+	if l.SingleElement != nil {
+		set++
+		if k := *l.SingleElement; k < 0 || k >= n {
+			return fmt.Errorf("transmit.labels[%d].single_element: %d is outside 0..%d", i, k, n-1)
+		}
+	}
+	if set > 1 {
+		return fmt.Errorf("transmit.labels[%d]: a label has exactly one of plane_wave_deg, virtual_source_m or single_element", i)
+	}
+	return nil
+}
+
 // PlaneWaveLabel returns a plane-wave label.
 func PlaneWaveLabel(deg float64) Label { return Label{PlaneWaveDeg: &deg} }
 
@@ -169,7 +199,7 @@ func (a *Acquisition) ValidateHeader() error {
 		return fmt.Errorf("transmit: must hold between 1 and %d events, got %d", MaxEvents, ne)
 	}
 	if a.NumSamples < 1 || a.NumSamples > MaxSamples {
-		return fmt.Errorf("channels: samples per channel must be between 1 and %d, got %d", MaxSamples, a.NumSamples)
+		return fmt.Errorf("channels.file: samples per channel must be between 1 and %d, got %d", MaxSamples, a.NumSamples)
 	}
 	n := a.NumElements()
 	for i, ev := range a.Events {
@@ -195,8 +225,8 @@ func (a *Acquisition) ValidateHeader() error {
 		if !any {
 			return fmt.Errorf("transmit.weights_file: event %d fires no element (all weights are 0)", i)
 		}
-		if l := ev.Label.SingleElement; l != nil && (*l < 0 || *l >= n) {
-			return fmt.Errorf("transmit.labels[%d].single_element: %d is outside 0..%d", i, *l, n-1)
+		if err := ev.Label.validate(i, n); err != nil {
+			return err
 		}
 	}
 	return nil

@@ -123,7 +123,7 @@ func LoadWith(dir string, opt LoadOptions) (*Acquisition, error) {
 		return nil, fmt.Errorf("%s (channels.file): dtype %s, but kind iq needs complex64 (<c8)", cpath, hc.DType)
 	}
 	if err := a.ValidateHeader(); err != nil {
-		return nil, wrapField(dir, mpath, err)
+		return nil, wrapField(dir, mpath, files, err)
 	}
 	if opt.HeaderOnly {
 		return a, nil
@@ -139,18 +139,22 @@ func LoadWith(dir string, opt LoadOptions) (*Acquisition, error) {
 		return nil, fmt.Errorf("%s (channels.file): %w", cpath, err)
 	}
 	if err := a.Validate(); err != nil {
-		return nil, wrapField(dir, mpath, err)
+		return nil, wrapField(dir, mpath, files, err)
 	}
 	return a, nil
 }
 
 // wrapField prefixes a validation error with the file it concerns: array
-// fields name their file, the rest the manifest.
-func wrapField(dir, mpath string, err error) error {
+// fields name their array file, the rest the manifest.
+func wrapField(dir, mpath string, files manifestFiles, err error) error {
 	msg := err.Error()
-	for _, k := range []string{"channels.file", "transmit.delays_file", "transmit.weights_file"} {
-		if strings.HasPrefix(msg, k) {
-			return fmt.Errorf("%s: %w", dir, err)
+	for _, f := range []struct{ key, name string }{
+		{"channels.file", files.channels},
+		{"transmit.delays_file", files.delays},
+		{"transmit.weights_file", files.weights},
+	} {
+		if f.name != "" && strings.HasPrefix(msg, f.key) {
+			return fmt.Errorf("%s: %w", filepath.Join(dir, f.name), err)
 		}
 	}
 	return fmt.Errorf("%s: %w", mpath, err)
@@ -282,6 +286,9 @@ func parseManifest(path string, data []byte) (*Acquisition, manifestFiles, error
 	switch kind {
 	case "rf":
 		a.Kind = RF
+		if cm.Has("demodulation_frequency_hz") {
+			return nil, files, cm.Errorf("demodulation_frequency_hz", "applies to kind iq only; remove it for rf data")
+		}
 	case "iq":
 		a.Kind = IQ
 		if a.DemodulationHz, err = cm.Float("demodulation_frequency_hz"); err != nil {

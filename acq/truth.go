@@ -135,20 +135,38 @@ func (t *Truth) Validate(n int) error {
 				return fmt.Errorf("truth: screen.file: value %d must be finite and within 100 us, got %g", i, v)
 			}
 		}
-		if t.Screen.RMSS < 0 || t.Screen.CorrelationLengthM < 0 {
-			return fmt.Errorf("truth: screen: rms_s and correlation_length_m must not be negative")
+		if !finiteNonNeg(t.Screen.RMSS) || !finiteNonNeg(t.Screen.CorrelationLengthM) {
+			return fmt.Errorf("truth: screen: rms_s and correlation_length_m must be finite and not negative")
+		}
+	}
+	for i, p := range t.TargetsM {
+		if !finite(p[0]) || !finite(p[1]) {
+			return fmt.Errorf("truth: targets_m[%d]: must be finite, got %v", i, p)
 		}
 	}
 	for i, in := range t.Inclusions {
-		if !(in.RadiusM > 0) {
+		if !finite(in.CenterM[0]) || !finite(in.CenterM[1]) {
+			return fmt.Errorf("truth: inclusions[%d].center_m: must be finite, got %v", i, in.CenterM)
+		}
+		if !(in.RadiusM > 0) || math.IsInf(in.RadiusM, 0) {
 			return fmt.Errorf("truth: inclusions[%d].radius_m: must be positive, got %g", i, in.RadiusM)
 		}
+		if !finite(in.ContrastDB) {
+			return fmt.Errorf("truth: inclusions[%d].contrast_db: must be finite, got %g", i, in.ContrastDB)
+		}
 	}
-	if t.AttenuationDBPerCmMHz < 0 {
-		return fmt.Errorf("truth: attenuation_db_cm_mhz: must not be negative")
+	if t.NoiseSNRDB != nil && !finite(*t.NoiseSNRDB) {
+		return fmt.Errorf("truth: noise_snr_db: must be finite, got %g", *t.NoiseSNRDB)
+	}
+	if !finiteNonNeg(t.AttenuationDBPerCmMHz) {
+		return fmt.Errorf("truth: attenuation_db_cm_mhz: must be finite and not negative, got %g", t.AttenuationDBPerCmMHz)
 	}
 	return nil
 }
+
+func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
+
+func finiteNonNeg(v float64) bool { return v >= 0 && !math.IsInf(v, 0) }
 
 // LoadTruth reads truth.yaml (and its screen file) from dir. It returns
 // (nil, nil) when the folder has no truth.yaml.
@@ -179,14 +197,9 @@ func LoadTruthFile(path string) (*Truth, error) {
 		return nil, root.Errorf("format", "unsupported format %q (this version reads %q)", format, TruthFormatV1)
 	}
 	t := &Truth{}
-	seed, _, err := root.OptInt("seed", 0)
-	if err != nil {
+	if t.Seed, _, err = root.OptUint64("seed", 0); err != nil {
 		return nil, err
 	}
-	if seed < 0 {
-		return nil, root.Errorf("seed", "must not be negative")
-	}
-	t.Seed = uint64(seed)
 	if t.Description, _, err = root.OptString("description", ""); err != nil {
 		return nil, err
 	}

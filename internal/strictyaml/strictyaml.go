@@ -7,8 +7,10 @@
 package strictyaml
 
 import (
+	"bytes"
 	"errors"
 	"fmt"
+	"io"
 	"math"
 	"strconv"
 	"strings"
@@ -58,12 +60,26 @@ func Parse(file string, data []byte) (*Map, error) {
 	if len(data) > maxDocBytes {
 		return nil, &Error{File: file, Msg: fmt.Sprintf("document is %d bytes, over the %d-byte limit", len(data), maxDocBytes)}
 	}
+	dec := yaml.NewDecoder(bytes.NewReader(data))
 	var doc yaml.Node
-	if err := yaml.Unmarshal(data, &doc); err != nil {
+	if err := dec.Decode(&doc); err != nil && err != io.EOF {
 		return nil, &Error{File: file, Msg: "not valid YAML: " + strings.TrimPrefix(err.Error(), "yaml: ")}
 	}
 	if doc.Kind == 0 || len(doc.Content) == 0 {
 		return nil, &Error{File: file, Msg: "empty document"}
+	}
+	// A second document would be ignored silently; refuse it instead.
+	var extra yaml.Node
+	switch err := dec.Decode(&extra); {
+	case err == io.EOF:
+	case err != nil:
+		return nil, &Error{File: file, Msg: "not valid YAML: " + strings.TrimPrefix(err.Error(), "yaml: ")}
+	default:
+		line := extra.Line
+		if len(extra.Content) > 0 {
+			line = extra.Content[0].Line
+		}
+		return nil, &Error{File: file, Line: line, Msg: "holds more than one YAML document (a second '---'); keep one"}
 	}
 	root := doc.Content[0]
 	return newMap(file, "", root)
@@ -79,6 +95,9 @@ func newMap(file, path string, n *yaml.Node) (*Map, error) {
 		k, v := deref(n.Content[i]), n.Content[i+1]
 		if k.Kind != yaml.ScalarNode {
 			return nil, &Error{File: file, Field: path, Line: k.Line, Msg: "keys must be plain strings"}
+		}
+		if k.Tag == "!!merge" {
+			return nil, &Error{File: file, Field: path, Line: k.Line, Msg: "merge keys (<<) are not supported; write the keys out"}
 		}
 		if _, dup := m.keys[k.Value]; dup {
 			return nil, &Error{File: file, Field: m.join(k.Value), Line: k.Line, Msg: "key appears twice"}
@@ -221,6 +240,28 @@ func (m *Map) OptInt(key string, def int) (v int, ok bool, err error) {
 	}
 	v, err = scalarInt(m.file, m.join(key), n)
 	return v, err == nil, err
+}
+
+// OptUint64 reads an optional whole number from 0 to 2^64-1, such as a
+// random seed.
+func (m *Map) OptUint64(key string, def uint64) (v uint64, ok bool, err error) {
+	n, ok := m.take(key)
+	if !ok {
+		return def, false, nil
+	}
+	path := m.join(key)
+	if n.Kind == yaml.ScalarNode && strings.HasPrefix(strings.TrimSpace(n.Value), "-") && (n.Tag == "!!int" || n.Tag == "!!float") {
+		return 0, false, &Error{File: m.file, Field: path, Line: n.Line, Msg: fmt.Sprintf("must not be negative, got %s", n.Value)}
+	}
+	if n.Kind == yaml.ScalarNode && n.Tag == "!!float" {
+		if f, err := strconv.ParseFloat(n.Value, 64); err == nil && f == math.Trunc(f) && f >= 0 && f < 1<<53 {
+			return uint64(f), true, nil
+		}
+	}
+	if n.Kind != yaml.ScalarNode || n.Tag != "!!int" || n.Decode(&v) != nil {
+		return 0, false, &Error{File: m.file, Field: path, Line: n.Line, Msg: fmt.Sprintf("expected a whole number from 0 to %d, got %s", uint64(math.MaxUint64), describe(n))}
+	}
+	return v, true, nil
 }
 
 func scalarInt(file, path string, n *yaml.Node) (int, error) {
