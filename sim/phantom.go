@@ -84,10 +84,24 @@ func ApplyInclusions(s []Scatterer, inc []acq.Inclusion) []Scatterer {
 	return out
 }
 
-// sortByDepth orders scatterers by depth (then x) for cache-friendly deposits;
-// the order is deterministic.
+// sortByDepth orders scatterers in small tiles, row by row in depth (tiles
+// of 1 mm in z and 2 mm in x), so that consecutive scatterers deposit into
+// nearby parts of every channel and the accumulators stay in cache. The order
+// is deterministic.
 func sortByDepth(s []Scatterer) {
+	const tz, tx = 1e-3, 2e-3
+	key := func(p Scatterer) (int, int) {
+		return int(math.Floor(p.Z / tz)), int(math.Floor(p.X / tx))
+	}
 	sort.SliceStable(s, func(i, j int) bool {
+		zi, xi := key(s[i])
+		zj, xj := key(s[j])
+		if zi != zj {
+			return zi < zj
+		}
+		if xi != xj {
+			return xi < xj
+		}
 		if s[i].Z != s[j].Z {
 			return s[i].Z < s[j].Z
 		}

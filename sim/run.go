@@ -10,19 +10,50 @@ import (
 
 // Simulate runs the forward model and returns the RF acquisition.
 //
-// Work is split so that the result does not depend on the number of workers:
-// with many events, each event is simulated by one worker; with few, the
-// scatterers of each event are split into a fixed number of blocks whose
-// accumulators are summed in a fixed order.
+// Sequences of several multi-element events are synthesised from the
+// single-element records (see synthesize); others are simulated directly.
+// Work is split so that the result does not depend on the number of workers.
 func Simulate(cfg *Config) (*acq.Acquisition, error) {
 	if err := cfg.Validate(); err != nil {
 		return nil, err
 	}
-	p := newPlan(cfg)
 	workers := cfg.Workers
 	if workers <= 0 {
 		workers = runtime.GOMAXPROCS(0)
 	}
+	var out []float32
+	var err error
+	if useSynthesis(cfg) {
+		out, err = synthesize(cfg, workers)
+	} else {
+		out, err = simulateDirect(cfg, workers)
+	}
+	if err != nil {
+		return nil, err
+	}
+	if cfg.NoiseSNRDB != nil {
+		addNoise(out, cfg.Probe.NumElements(), cfg.NumSamples, len(cfg.Events), cfg.Seed, *cfg.NoiseSNRDB)
+	}
+	a := &acq.Acquisition{
+		Description:     cfg.Description,
+		Probe:           cfg.Probe,
+		SamplingRateHz:  cfg.SamplingRateHz,
+		StartTimeS:      cfg.StartTimeS,
+		AssumedSpeedMPS: cfg.AssumedSpeedMPS,
+		Kind:            acq.RF,
+		Events:          cfg.Events,
+		NumSamples:      cfg.NumSamples,
+		RF:              out,
+	}
+	return a, a.Validate()
+}
+
+// simulateDirect deposits every scatterer's echoes for every event: with
+// many events each is simulated by one worker; with few, the scatterers of
+// each event are split into a fixed number of blocks whose accumulators are
+// summed in a fixed order.
+func simulateDirect(cfg *Config, workers int) ([]float32, error) {
+	p := newPlan(cfg)
 	maxBytes := cfg.MaxBytes
 	if maxBytes <= 0 {
 		maxBytes = 6 << 30
@@ -107,21 +138,7 @@ func Simulate(cfg *Config) (*acq.Acquisition, error) {
 			report()
 		}
 	}
-	if cfg.NoiseSNRDB != nil {
-		addNoise(out, p, cfg.Seed, *cfg.NoiseSNRDB)
-	}
-	a := &acq.Acquisition{
-		Description:     cfg.Description,
-		Probe:           cfg.Probe,
-		SamplingRateHz:  cfg.SamplingRateHz,
-		StartTimeS:      cfg.StartTimeS,
-		AssumedSpeedMPS: cfg.AssumedSpeedMPS,
-		Kind:            acq.RF,
-		Events:          cfg.Events,
-		NumSamples:      cfg.NumSamples,
-		RF:              out,
-	}
-	return a, a.Validate()
+	return out, nil
 }
 
 // blocks is the fixed number of scatterer blocks per event when events are

@@ -29,6 +29,7 @@ type CLI struct {
 
 	Simulate SimulateCmd `cmd:"" help:"Simulate an acquisition with known ground truth from a scenario file."`
 	Inspect  InspectCmd  `cmd:"" help:"Describe an acquisition folder: probe, sequence, sizes, depth range, truth."`
+	Image    ImageCmd    `cmd:"" help:"Form a delay-and-sum image (complex .npy and B-mode PNG) for an assumed speed or delay model."`
 }
 
 // exitError carries an exit status through kong's Run.
