@@ -63,7 +63,7 @@ type Transmit struct {
 // Defaults.
 const (
 	DefaultAssumedSpeed = 1540.0
-	DefaultTargetAmp    = 30.0
+	DefaultTargetAmp    = 100.0
 	DefaultDensity      = 10.0
 )
 

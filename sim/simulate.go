@@ -88,7 +88,8 @@ type plan struct {
 	omega      float64 // centre angular frequency, rad per fine bin
 	groupTol   float32 // fine bins
 	kernels    [][]complex64
-	pulseStepS float64 // time step between attenuation kernels (s); 0 = one kernel
+	kernelsRe  []float32 // the real kernel when there is no attenuation
+	pulseStepS float64   // time step between attenuation kernels (s); 0 = one kernel
 	carrier    []complex64
 	screenFine []float32
 	screenPh   []complex64 // exp(-j w0 phi_j)
@@ -143,6 +144,12 @@ func newPlan(cfg *Config) *plan {
 		}
 		p.kernels = append(p.kernels, h)
 	}
+	if alpha == 0 {
+		p.kernelsRe = make([]float32, len(p.kernels[0]))
+		for m, v := range p.kernels[0] {
+			p.kernelsRe[m] = real(v)
+		}
+	}
 	p.carrier = make([]complex64, p.ns)
 	for s := range p.carrier {
 		t := cfg.StartTimeS + float64(s)/cfg.SamplingRateHz
@@ -168,9 +175,9 @@ func newPlan(cfg *Config) *plan {
 		p.evPhase[e] = make([]complex64, p.n)
 		for i := range p.n {
 			d := ev.Delays[i]
-			p.delaysFine[e][i] = float32(d*p.fsFine) + p.screenFine[i]
+			p.delaysFine[e][i] = float32(d * p.fsFine)
 			sn, cs := math.Sincos(-2 * math.Pi * f0 * d)
-			p.evPhase[e][i] = complex(float32(ev.Weights[i]), 0) * complex(float32(cs), float32(sn)) * p.screenPh[i]
+			p.evPhase[e][i] = complex(float32(ev.Weights[i]), 0) * complex(float32(cs), float32(sn))
 			if ev.Weights[i] != 0 {
 				p.firing[e] = append(p.firing[e], int32(i))
 			}
@@ -180,13 +187,15 @@ func newPlan(cfg *Config) *plan {
 }
 
 // fillPaths computes, for one scatterer and every element, the one-way travel
-// time tau in fine bins and the path phasor g exp(-j w0 tau), where
-// g = D(theta) refDistance / r is the directivity over the path length.
+// time tau plus the element's screen delay phi, in fine bins, and the path
+// phasor g exp(-j w0 (tau + phi)), where g = D(theta) refDistance / r is the
+// directivity over the path length. The screen term belongs to the element,
+// so it applies alike to paths that leave it and paths that enter it.
 func (p *plan) fillPaths(tr *tracer, s Scatterer, tau []float32, ph []complex64) {
 	f0 := p.cfg.Probe.CenterFrequencyHz
 	for k, e := range p.elements {
 		r := tr.trace(e.X, e.Z, s.X, s.Z)
-		tau[k] = float32(r.T * p.fsFine)
+		tau[k] = float32(r.T*p.fsFine) + p.screenFine[k]
 		cos := r.DX*e.NX + r.DZ*e.NZ
 		g := 0.0
 		if cos > 0 && r.L > 0 {
@@ -199,7 +208,7 @@ func (p *plan) fillPaths(tr *tracer, s Scatterer, tau []float32, ph []complex64)
 				}
 			}
 		}
-		ph[k] = complex(float32(g), 0) * dsp.Phasor(-f0*r.T)
+		ph[k] = complex(float32(g), 0) * dsp.Phasor(-f0*r.T) * p.screenPh[k]
 	}
 }
 
@@ -305,12 +314,16 @@ func (d *depositor) scatterer(acc *accumulator, tau []float32, ph []complex64, a
 		tlo, thi = min(tlo, T), max(thi, T)
 	}
 	camp := complex(amp, 0)
+	if len(gT) == 1 {
+		depositOne(acc, gT[0]-acc0, gA[0]*camp, tau, ph)
+		return
+	}
 	for j := range p.n {
-		pj := ph[j] * p.screenPh[j] * camp
+		pj := ph[j] * camp
 		if pj == 0 {
 			continue
 		}
-		base := tau[j] + p.screenFine[j] - acc0
+		base := tau[j] - acc0
 		row := acc.v[j*acc.n : (j+1)*acc.n]
 		if tlo+base >= 0 && thi+base < maxK {
 			depositFast(row, gT, gA, base, pj)
@@ -334,6 +347,32 @@ func (d *depositor) scatterer(acc *accumulator, tau []float32, ph []complex64, a
 
 func abs32(z complex64) float32 {
 	return float32(math.Sqrt(float64(real(z)*real(z) + imag(z)*imag(z))))
+}
+
+// depositOne deposits a single transmit impulse a at time T (fine bins from
+// accumulator bin 0) on every receive element j, at T + tau[j] with the
+// phasor a ph[j]: the whole work of a single-element event.
+func depositOne(acc *accumulator, T float32, a complex64, tau []float32, ph []complex64) {
+	n := acc.n
+	maxK := float32(n - 1)
+	ph = ph[:len(tau)]
+	ar, ai := real(a), imag(a)
+	for j, tj := range tau {
+		t := T + tj
+		if !(t >= 0 && t < maxK) {
+			continue
+		}
+		k := int(t)
+		f := t - float32(k)
+		pr, pi := real(ph[j]), imag(ph[j])
+		vr := ar*pr - ai*pi
+		vi := ar*pi + ai*pr
+		o := j*n + k
+		c := acc.v[o : o+2 : o+2]
+		fr, fi := vr*f, vi*f
+		c[0] += complex(vr-fr, vi-fi)
+		c[1] += complex(fr, fi)
+	}
 }
 
 // depositFast deposits the impulses gA * pj at times gT + base (fine bins,
@@ -360,25 +399,33 @@ func depositFast(row []complex64, gT []float32, gA []complex64, base float32, pj
 // kernel (for the path length c t when attenuating).
 func (p *plan) filter(acc *accumulator, dst []float32) {
 	L := 2*p.pad + 1
+	realKernel := p.pulseStepS == 0
 	for j := range p.n {
 		v := acc.v[j*acc.n : (j+1)*acc.n]
 		row := dst[j*p.ns : (j+1)*p.ns]
 		for s := range p.ns {
 			center := s*p.up + p.pad
-			tab := 0
-			if p.pulseStepS > 0 {
-				t := p.cfg.StartTimeS + float64(s)/p.cfg.SamplingRateHz
-				tab = min(max(int(math.Round(t/p.pulseStepS)), 0), len(p.kernels)-1)
-			}
-			h := p.kernels[tab][:L]
 			// sum_m v[center + pad - m] h[m]
 			w := v[center+p.pad-L+1 : center+p.pad+1]
 			w = w[:L]
 			var sr, si float32
-			for m := 0; m < L; m++ {
-				a, b := w[L-1-m], h[m]
-				sr += real(a)*real(b) - imag(a)*imag(b)
-				si += real(a)*imag(b) + imag(a)*real(b)
+			if realKernel {
+				h := p.kernelsRe[:L]
+				for m := 0; m < L; m++ {
+					a := w[L-1-m]
+					sr += real(a) * h[m]
+					si += imag(a) * h[m]
+				}
+			} else {
+				tab := 0
+				t := p.cfg.StartTimeS + float64(s)/p.cfg.SamplingRateHz
+				tab = min(max(int(math.Round(t/p.pulseStepS)), 0), len(p.kernels)-1)
+				h := p.kernels[tab][:L]
+				for m := 0; m < L; m++ {
+					a, b := w[L-1-m], h[m]
+					sr += real(a)*real(b) - imag(a)*imag(b)
+					si += real(a)*imag(b) + imag(a)*real(b)
+				}
 			}
 			c := p.carrier[s]
 			row[s] += sr*real(c) - si*imag(c)

@@ -30,6 +30,7 @@ type CLI struct {
 	Simulate SimulateCmd `cmd:"" help:"Simulate an acquisition with known ground truth from a scenario file."`
 	Inspect  InspectCmd  `cmd:"" help:"Describe an acquisition folder: probe, sequence, sizes, depth range, truth."`
 	Image    ImageCmd    `cmd:"" help:"Form a delay-and-sum image (complex .npy and B-mode PNG) for an assumed speed or delay model."`
+	Demo     DemoCmd     `cmd:"" help:"Run the main job end to end on built-in simulated data."`
 }
 
 // exitError carries an exit status through kong's Run.
