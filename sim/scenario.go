@@ -319,6 +319,9 @@ func parseTransmit(tm *strictyaml.Map, s *Scenario) error {
 			if err != nil {
 				return err
 			}
+			if len(pts) == 0 {
+				return m.Errorf("sources_mm", "must list at least one virtual source")
+			}
 			for _, q := range pts {
 				if q[1] >= 0 {
 					return m.Errorf("sources_mm", "virtual sources must lie behind the array (z < 0), got z = %g mm", q[1])

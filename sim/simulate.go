@@ -191,8 +191,14 @@ func newPlan(cfg *Config) *plan {
 // phasor g exp(-j w0 (tau + phi)), where g = D(theta) refDistance / r is the
 // directivity over the path length. The screen term belongs to the element,
 // so it applies alike to paths that leave it and paths that enter it.
+//
+// The tracer's warm start is reset first: the layered ray solve stops within
+// a rounding error that depends on its starting guess, so without the reset
+// a scatterer's paths would depend on the scatterer the worker traced before,
+// and the result on the number of workers.
 func (p *plan) fillPaths(tr *tracer, s Scatterer, tau []float32, ph []complex64) {
 	f0 := p.cfg.Probe.CenterFrequencyHz
+	tr.q = 0
 	for k, e := range p.elements {
 		r := tr.trace(e.X, e.Z, s.X, s.Z)
 		tau[k] = float32(r.T*p.fsFine) + p.screenFine[k]

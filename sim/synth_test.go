@@ -9,8 +9,9 @@ import (
 
 // TestSynthesisMatchesDirect checks the superposition route against direct
 // simulation: both model the same physics, so the records agree closely (the
-// direct route merges transmit elements whose arrivals fall within a quarter
-// of the envelope sigma, an approximation the synthesis route does not make).
+// direct route merges transmit elements whose arrivals fall within a tenth
+// of the envelope sigma (groupFrac), an approximation the synthesis route
+// does not make).
 func TestSynthesisMatchesDirect(t *testing.T) {
 	t.Parallel()
 	p, _ := Preset("linear-128")
