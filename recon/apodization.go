@@ -11,19 +11,23 @@ import (
 // aperture centred on the pixel's foot on the array, tapered by a window,
 // and an element directivity cut-off.
 type apodizer struct {
-	els      []acq.Element
-	s        []float64 // element coordinate along the array, m
-	convex   bool
-	radius   float64
-	fnum     float64
-	win      dsp.Window
-	cosMax   float64 // directivity cut-off as cos(theta_max); -1 for none
-	half     float64 // half the array length (full-aperture window)
-	centre   float64
+	els    []acq.Element
+	s      []float64 // element coordinate along the array, m
+	convex bool
+	radius float64
+	fnum   float64
+	dscale float64 // multiplies the depth used by the F-number rule
+	win    dsp.Window
+	cosMax float64 // directivity cut-off as cos(theta_max); -1 for none
+	half   float64 // half the array length (full-aperture window)
+	centre float64
 }
 
 func newApodizer(p *acq.Probe, cfg Config, c float64) *apodizer {
-	a := &apodizer{els: p.Elements(), fnum: cfg.FNumber, win: cfg.Window, cosMax: -1}
+	a := &apodizer{els: p.Elements(), fnum: cfg.FNumber, win: cfg.Window, cosMax: -1, dscale: 1}
+	if cfg.ApertureDepthScale > 0 {
+		a.dscale = cfg.ApertureDepthScale
+	}
 	a.convex = p.Geometry == acq.Convex
 	a.radius = p.RadiusM
 	a.s = make([]float64, len(a.els))
@@ -77,7 +81,7 @@ func (a *apodizer) weight(j int, x, z float64) float64 {
 	if d <= 0 {
 		return 0
 	}
-	half := d / (2 * a.fnum)
+	half := d * a.dscale / (2 * a.fnum)
 	u := (a.s[j] - s) / half
 	if math.Abs(u) > 1 {
 		return 0

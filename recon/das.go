@@ -52,6 +52,11 @@ type Config struct {
 	// or no cut-off when the width is unknown; a negative value disables it.
 	MaxAngleDeg float64
 	Interp      Interp
+	// ApertureDepthScale, when positive, multiplies the pixel depth that the
+	// F-number rule uses. A speed sweep that moves its pixels with the echoes
+	// (depth scaled by c / c_ref) sets it to c_ref / c, so that each echo is
+	// summed over the same elements whatever speed is assumed.
+	ApertureDepthScale float64
 	// Events selects the events to compound; nil means all.
 	Events []int
 	// Workers is the size of the worker pool; 0 means GOMAXPROCS.
@@ -99,6 +104,9 @@ func NewBeamformer(a *acq.Acquisition, g *Grid, m DelayModel, cfg Config) (*Beam
 	}
 	if len(m.Elements()) != a.NumElements() {
 		return nil, fmt.Errorf("beamformer: delay model has %d elements, acquisition %d", len(m.Elements()), a.NumElements())
+	}
+	if cfg.ApertureDepthScale < 0 || math.IsNaN(cfg.ApertureDepthScale) || math.IsInf(cfg.ApertureDepthScale, 0) {
+		return nil, fmt.Errorf("beamformer: aperture depth scale must be finite and non-negative")
 	}
 	if cfg.FNumber < 0 || math.IsNaN(cfg.FNumber) || math.IsInf(cfg.FNumber, 0) {
 		return nil, fmt.Errorf("beamformer: F-number must be finite and non-negative, got %g", cfg.FNumber)
@@ -153,11 +161,13 @@ func (bf *Beamformer) workers() int {
 
 func (bf *Beamformer) makeTiles() {
 	g := bf.Grid
-	for c := 0; c < g.Cols; c++ {
-		for r0 := 0; r0 < g.Rows; r0 += tileSize {
-			r1 := min(r0+tileSize, g.Rows)
+	// Tiles at the same depth in neighbouring columns read nearly the same
+	// stretch of every channel, so they are made (and run) one after the
+	// other, while those samples are still in cache.
+	for r0 := 0; r0 < g.Rows; r0 += tileSize {
+		for c := 0; c < g.Cols; c++ {
 			t := tile{}
-			for r := r0; r < r1; r++ {
+			for r := r0; r < min(r0+tileSize, g.Rows); r++ {
 				t.pix = append(t.pix, int32(r*g.Cols+c))
 			}
 			bf.tiles = append(bf.tiles, t)
@@ -296,8 +306,10 @@ func (bf *Beamformer) FormEvents(dst []complex64, ch *Channels, subset []int) ([
 	dst = dst[:np]
 	clear(dst)
 	kern := kernelLinear
+	pair := kernelLinearPair
 	if bf.cfg.Interp == Cubic {
 		kern = kernelCubic
+		pair = nil
 	}
 	var pool sync.Pool
 	bf.parallelTiles(func(t *tile) {
@@ -315,12 +327,33 @@ func (bf *Beamformer) FormEvents(dst []complex64, ch *Channels, subset []int) ([
 			e := bf.events[i]
 			clear(acc)
 			tx := t.tx[i*n : (i+1)*n]
-			for j := range bf.nn {
-				k0, k1 := t.k0[j], t.k1[j]
-				if k0 >= k1 {
-					continue
+			one := func(j int, k0, k1 int32) {
+				if k0 < k1 {
+					kern(acc[k0:k1], ch.Row(e, j), tx[k0:k1], t.rx[j*n+int(k0):j*n+int(k1)], t.w[j*n+int(k0):j*n+int(k1)])
 				}
-				kern(acc[k0:k1], ch.Row(e, j), tx[k0:k1], t.rx[j*n+int(k0):j*n+int(k1)], t.w[j*n+int(k0):j*n+int(k1)])
+			}
+			j := 0
+			if pair != nil {
+				for ; j+1 < bf.nn; j += 2 {
+					a0, a1, b0, b1 := t.k0[j], t.k1[j], t.k0[j+1], t.k1[j+1]
+					lo, hi := max(a0, b0), min(a1, b1)
+					if lo >= hi {
+						one(j, a0, a1)
+						one(j+1, b0, b1)
+						continue
+					}
+					// each pixel still adds element j before j+1
+					one(j, a0, lo)
+					one(j+1, b0, lo)
+					pair(acc[lo:hi], ch.Row(e, j), ch.Row(e, j+1), tx[lo:hi],
+						t.rx[j*n+int(lo):j*n+int(hi)], t.rx[(j+1)*n+int(lo):(j+1)*n+int(hi)],
+						t.w[j*n+int(lo):j*n+int(hi)], t.w[(j+1)*n+int(lo):(j+1)*n+int(hi)])
+					one(j, hi, a1)
+					one(j+1, hi, b1)
+				}
+			}
+			for ; j < bf.nn; j++ {
+				one(j, t.k0[j], t.k1[j])
 			}
 			txw := t.txw[i*n : (i+1)*n]
 			for k, p := range t.pix {
@@ -368,6 +401,40 @@ func kernelLinear(acc, row []complex64, tx, rx []float32, w []complex64) {
 		vi := imag(a) + f*(imag(b)-imag(a))
 		wr, wi := real(w[k]), imag(w[k])
 		acc[k] += complex(vr*wr-vi*wi, vr*wi+vi*wr)
+	}
+}
+
+// kernelLinearPair is kernelLinear for two elements a and b over the same
+// run of pixels: acc[k] = (acc[k] + wa[k] iq_a) + wb[k] iq_b, the same sums in
+// the same order as two calls, with half the loads and stores of acc.
+func kernelLinearPair(acc, rowA, rowB []complex64, tx, rxA, rxB []float32, wA, wB []complex64) {
+	n := len(acc)
+	tx, rxA, rxB, wA, wB = tx[:n], rxA[:n], rxB[:n], wA[:n], wB[:n]
+	limA, limB := float32(len(rowA)-1), float32(len(rowB)-1)
+	for k := range acc {
+		v := acc[k]
+		t := tx[k]
+		if s := t + rxA[k]; s >= 0 && s < limA {
+			i := int(s)
+			f := s - float32(i)
+			r := rowA[i : i+2 : i+2]
+			a, b := r[0], r[1]
+			vr := real(a) + f*(real(b)-real(a))
+			vi := imag(a) + f*(imag(b)-imag(a))
+			wr, wi := real(wA[k]), imag(wA[k])
+			v += complex(vr*wr-vi*wi, vr*wi+vi*wr)
+		}
+		if s := t + rxB[k]; s >= 0 && s < limB {
+			i := int(s)
+			f := s - float32(i)
+			r := rowB[i : i+2 : i+2]
+			a, b := r[0], r[1]
+			vr := real(a) + f*(real(b)-real(a))
+			vi := imag(a) + f*(imag(b)-imag(a))
+			wr, wi := real(wB[k]), imag(wB[k])
+			v += complex(vr*wr-vi*wi, vr*wi+vi*wr)
+		}
+		acc[k] = v
 	}
 }
 

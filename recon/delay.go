@@ -231,8 +231,11 @@ func (l *Layered) time(ax, az, bx, bz float64) float64 {
 	var zs []float64
 	var vs []float64
 	k0 := l.layerOf(az)
-	k1 := l.layerOf(bz)
-	if k0 == k1 {
+	// The lower end belongs to the layer the ray arrives from, so that an end
+	// exactly on an interface adds no zero-length segment (whose gradient
+	// would be 0/0, making the time NaN).
+	k1 := l.layerAbove(bz)
+	if k1 <= k0 {
 		return math.Hypot(bx-ax, bz-az) / l.speeds[k0]
 	}
 	var buf [8]float64
@@ -261,7 +264,12 @@ func (l *Layered) time(ax, az, bx, bz float64) float64 {
 		}
 		return cx[i], zs[i]
 	}
-	var g, d, o [8]float64
+	// work arrays on the stack for up to 8 crossed interfaces
+	var gb, db, ob, cpb, dpb [8]float64
+	g, d, o, cp, dp := gb[:], db[:], ob[:], cpb[:], dpb[:]
+	if m > len(gb) {
+		g, d, o, cp, dp = make([]float64, m), make([]float64, m), make([]float64, m), make([]float64, m), make([]float64, m)
+	}
 	for it := 0; it < 50; it++ {
 		// gradient and tridiagonal Hessian of T in the crossing abscissae
 		maxStep := 0.0
@@ -278,7 +286,6 @@ func (l *Layered) time(ax, az, bx, bz float64) float64 {
 			}
 		}
 		// solve the tridiagonal system H s = g (Thomas algorithm)
-		var cp, dp [8]float64
 		for i := 0; i < m; i++ {
 			den := d[i]
 			if i > 0 {
@@ -320,6 +327,17 @@ func (l *Layered) time(ax, az, bx, bz float64) float64 {
 func (l *Layered) layerOf(z float64) int {
 	for k, b := range l.bots {
 		if z < b {
+			return k
+		}
+	}
+	return len(l.bots)
+}
+
+// layerAbove is layerOf with a depth on an interface counted in the layer
+// above it.
+func (l *Layered) layerAbove(z float64) int {
+	for k, b := range l.bots {
+		if z <= b {
 			return k
 		}
 	}

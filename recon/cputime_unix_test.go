@@ -1,0 +1,16 @@
+//go:build unix
+
+package recon_test
+
+import "syscall"
+
+// cpuSeconds returns the CPU time (user and system) this process has used,
+// so that a benchmark can report its throughput per CPU-second, which other
+// load on a shared machine disturbs much less than its wall-clock rate.
+func cpuSeconds() float64 {
+	var ru syscall.Rusage
+	if err := syscall.Getrusage(syscall.RUSAGE_SELF, &ru); err != nil {
+		return 0
+	}
+	return float64(ru.Utime.Sec+ru.Stime.Sec) + float64(ru.Utime.Usec+ru.Stime.Usec)*1e-6
+}
