@@ -196,6 +196,117 @@ func (ev *evaluator) run(c float64) ([]sums, error) {
 	return out, nil
 }
 
+// tiledSweep holds the per-tile criterion sums of every speed evaluated.
+type tiledSweep struct {
+	cfg       *SweepConfig
+	ev        *evaluator
+	evaluated map[float64][]sums
+	order     []float64
+	done      int
+	total     int
+}
+
+func newTiledSweep(a *acq.Acquisition, ch *recon.Channels, cfg *SweepConfig, region Region) *tiledSweep {
+	dz := cfg.PixelM
+	dx := 2 * dz
+	if n := (region.X1 - region.X0) * (region.Z1 - region.Z0) / (dx * dz); n > MaxPixels {
+		f := math.Sqrt(n / MaxPixels)
+		dx, dz = dx*f, dz*f
+	}
+	xs, zs, tiles, nTiles := roiPixels(region, dx, dz, cfg.TileM)
+	zMid := (region.Z0 + region.Z1) / 2
+	active := zMid / cfg.FNumber / a.Probe.MeanPitch()
+	ev := &evaluator{a: a, ch: ch, cfg: cfg, xs: xs, zs: zs, tiles: tiles, nTiles: nTiles,
+		maxLag: max(1, min(int(math.Round(0.1*active)), a.NumElements()-1))}
+	return &tiledSweep{cfg: cfg, ev: ev, evaluated: map[float64][]sums{}}
+}
+
+// eval evaluates speed c unless done already or out of range.
+func (ts *tiledSweep) eval(c float64) error {
+	cfg := ts.cfg
+	c = math.Round(c*1e6) / 1e6
+	if _, ok := ts.evaluated[c]; ok || c < cfg.MinMPS-1e-9 || c > cfg.MaxMPS+1e-9 {
+		return nil
+	}
+	s, err := ts.ev.run(c)
+	if err != nil {
+		return err
+	}
+	ts.evaluated[c] = s
+	ts.order = append(ts.order, c)
+	ts.done++
+	if cfg.Progress != nil {
+		ts.cfg.Progress(ts.done, max(ts.total, ts.done))
+	}
+	return nil
+}
+
+// coarse evaluates the coarse grid over the whole range.
+func (ts *tiledSweep) coarse() error {
+	cfg := ts.cfg
+	for c := cfg.MinMPS; c <= cfg.MaxMPS+1e-9; c += cfg.CoarseStepMPS {
+		if err := ts.eval(c); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// fine evaluates the fine grid within one coarse step of c0.
+func (ts *tiledSweep) fine(c0 float64) error {
+	cfg := ts.cfg
+	for c := c0 - cfg.CoarseStepMPS; c <= c0+cfg.CoarseStepMPS+1e-9; c += cfg.FineStepMPS {
+		if err := ts.eval(c); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// curve returns the evaluated speeds in order and the criterion pooled over
+// the tiles, each tile weighted by weights[t] (nil: every tile once, and
+// tiles outside use are skipped when use is not nil).
+func (ts *tiledSweep) curve(weights []float64, use []bool) ([]float64, []float64) {
+	sp := append([]float64(nil), ts.order...)
+	sort.Float64s(sp)
+	vals := make([]float64, len(sp))
+	pool := newSums(ts.ev.maxLag)
+	for i, c := range sp {
+		pool.reset()
+		for t, s := range ts.evaluated[c] {
+			if use != nil && !use[t] {
+				continue
+			}
+			w := 1.0
+			if weights != nil {
+				w = weights[t]
+			}
+			if w == 0 {
+				continue
+			}
+			scaled := s
+			if w != 1 {
+				scaled = scaleSums(s, w)
+			}
+			pool.add(&scaled)
+		}
+		vals[i] = pool.value(ts.cfg.Criterion, ts.ev.maxLag)
+	}
+	return sp, vals
+}
+
+// resolveRegion returns the configured region or an automatic one.
+func resolveRegion(a *acq.Acquisition, ch *recon.Channels, cfg *SweepConfig) (Region, []string, error) {
+	if cfg.Region != nil {
+		r := *cfg.Region
+		if !r.valid() {
+			return Region{}, nil, fmt.Errorf("region %s: want x1 > x0, z1 > z0 > 0", r)
+		}
+		return r, nil, nil
+	}
+	return AutoRegion(a, ch, cfg.RefSpeedMPS, cfg.FNumber)
+}
+
 // Sweep estimates the speed of sound by maximising a focus criterion over a
 // coarse grid of assumed speeds, then a fine grid around the best, then a
 // quadratic fit to the peak. The uncertainty comes from a block bootstrap
@@ -208,100 +319,29 @@ func Sweep(a *acq.Acquisition, ch *recon.Channels, cfg SweepConfig) (*Result, er
 		return nil, err
 	}
 	res := &Result{Method: "sweep", Criterion: cfg.Criterion.String(), RefSpeed: cfg.RefSpeedMPS}
-	var region Region
-	if cfg.Region != nil {
-		region = *cfg.Region
-		if !region.valid() {
-			return nil, fmt.Errorf("region %s: want x1 > x0, z1 > z0 > 0", region)
-		}
-	} else {
-		r, notes, err := AutoRegion(a, ch, cfg.RefSpeedMPS, cfg.FNumber)
-		if err != nil {
-			return nil, err
-		}
-		region = r
-		res.Notes = append(res.Notes, notes...)
+	region, notes, err := resolveRegion(a, ch, &cfg)
+	if err != nil {
+		return nil, err
 	}
+	res.Notes = append(res.Notes, notes...)
 	res.Region = region
 	res.RegionMM = [4]float64{region.X0 * 1e3, region.X1 * 1e3, region.Z0 * 1e3, region.Z1 * 1e3}
-	dz := cfg.PixelM
-	dx := 2 * dz
-	if n := (region.X1 - region.X0) * (region.Z1 - region.Z0) / (dx * dz); n > MaxPixels {
-		f := math.Sqrt(n / MaxPixels)
-		dx, dz = dx*f, dz*f
+	ts := newTiledSweep(a, ch, &cfg, region)
+	res.Tiles = ts.ev.nTiles
+	ts.total = int(math.Floor((cfg.MaxMPS-cfg.MinMPS)/cfg.CoarseStepMPS)) + 1 + int(2*cfg.CoarseStepMPS/cfg.FineStepMPS)
+	if err := ts.coarse(); err != nil {
+		return nil, err
 	}
-	xs, zs, tiles, nTiles := roiPixels(region, dx, dz, cfg.TileM)
-	res.Tiles = nTiles
-	zMid := (region.Z0 + region.Z1) / 2
-	active := zMid / cfg.FNumber / a.Probe.MeanPitch()
-	ev := &evaluator{a: a, ch: ch, cfg: &cfg, xs: xs, zs: zs, tiles: tiles, nTiles: nTiles,
-		maxLag: max(1, min(int(math.Round(0.1*active)), a.NumElements()-1))}
-
-	evaluated := map[float64][]sums{}
-	var order []float64
-	total := int(math.Floor((cfg.MaxMPS-cfg.MinMPS)/cfg.CoarseStepMPS)) + 1
-	total += int(2 * cfg.CoarseStepMPS / cfg.FineStepMPS)
-	done := 0
-	eval := func(c float64) error {
-		c = math.Round(c*1e6) / 1e6
-		if _, ok := evaluated[c]; ok || c < cfg.MinMPS-1e-9 || c > cfg.MaxMPS+1e-9 {
-			return nil
-		}
-		s, err := ev.run(c)
-		if err != nil {
-			return err
-		}
-		evaluated[c] = s
-		order = append(order, c)
-		done++
-		if cfg.Progress != nil {
-			cfg.Progress(done, total)
-		}
-		return nil
-	}
-	for c := cfg.MinMPS; c <= cfg.MaxMPS+1e-9; c += cfg.CoarseStepMPS {
-		if err := eval(c); err != nil {
-			return nil, err
-		}
-	}
-	curveOf := func(weights []float64) ([]float64, []float64) {
-		sp := append([]float64(nil), order...)
-		sort.Float64s(sp)
-		vals := make([]float64, len(sp))
-		pool := newSums(ev.maxLag)
-		for i, c := range sp {
-			pool.reset()
-			for t, s := range evaluated[c] {
-				w := 1.0
-				if weights != nil {
-					w = weights[t]
-				}
-				if w == 0 {
-					continue
-				}
-				scaled := s
-				if w != 1 {
-					scaled = scaleSums(s, w)
-				}
-				pool.add(&scaled)
-			}
-			vals[i] = pool.value(cfg.Criterion, ev.maxLag)
-		}
-		return sp, vals
-	}
-	sp, vals := curveOf(nil)
+	sp, vals := ts.curve(nil, nil)
 	best := argmaxFinite(vals)
 	if best < 0 {
 		return nil, errors.New("the criterion is undefined everywhere: no echoes in the region?")
 	}
-	// fine grid around the best coarse speed
-	c0 := sp[best]
-	for c := c0 - cfg.CoarseStepMPS; c <= c0+cfg.CoarseStepMPS+1e-9; c += cfg.FineStepMPS {
-		if err := eval(c); err != nil {
-			return nil, err
-		}
+	if err := ts.fine(sp[best]); err != nil {
+		return nil, err
 	}
-	sp, vals = curveOf(nil)
+	sp, vals = ts.curve(nil, nil)
+	best = argmaxFinite(vals)
 	for i := range sp {
 		res.Curve = append(res.Curve, Point{SpeedMPS: sp[i], Value: vals[i]})
 	}
@@ -309,6 +349,7 @@ func Sweep(a *acq.Acquisition, ch *recon.Channels, cfg SweepConfig) (*Result, er
 	res.SpeedMPS = peak
 
 	// block bootstrap over tiles
+	nTiles := ts.ev.nTiles
 	rng := rand.New(rand.NewPCG(cfg.Seed, 0x626f6f74))
 	peaks := make([]float64, 0, cfg.Bootstrap)
 	edges := 0
@@ -318,7 +359,7 @@ func Sweep(a *acq.Acquisition, ch *recon.Channels, cfg SweepConfig) (*Result, er
 		for range nTiles {
 			w[rng.IntN(nTiles)]++
 		}
-		bsp, bv := curveOf(w)
+		bsp, bv := ts.curve(w, nil)
 		pk, e := refinePeak(bsp, bv, cfg.CoarseStepMPS)
 		if e {
 			edges++
@@ -327,31 +368,7 @@ func Sweep(a *acq.Acquisition, ch *recon.Channels, cfg SweepConfig) (*Result, er
 			peaks = append(peaks, pk)
 		}
 	}
-	sort.Float64s(peaks)
-	if len(peaks) > 1 {
-		mean := 0.0
-		for _, v := range peaks {
-			mean += v
-		}
-		mean /= float64(len(peaks))
-		ss := 0.0
-		for _, v := range peaks {
-			ss += (v - mean) * (v - mean)
-		}
-		res.StdErrMPS = math.Sqrt(ss / float64(len(peaks)-1))
-		lo, hi := quantile(peaks, 0.025), quantile(peaks, 0.975)
-		// Combine the statistical interval with the systematic component
-		// (rectangular, standard uncertainty a / sqrt(3)) in quadrature, on
-		// each side of the estimate.
-		if cfg.SystematicFrac > 0 {
-			res.SystematicMPS = cfg.SystematicFrac * res.SpeedMPS / math.Sqrt(3)
-		}
-		sys := 1.96 * res.SystematicMPS
-		dl, dh := math.Max(res.SpeedMPS-lo, 0), math.Max(hi-res.SpeedMPS, 0)
-		res.CI95MPS = [2]float64{res.SpeedMPS - math.Hypot(dl, sys), res.SpeedMPS + math.Hypot(dh, sys)}
-	} else {
-		res.CI95MPS = [2]float64{math.NaN(), math.NaN()}
-	}
+	res.StdErrMPS, res.CI95MPS, res.SystematicMPS = intervalFrom(peaks, res.SpeedMPS, cfg.SystematicFrac)
 	res.Confidence = High
 	lowf := func(format string, args ...any) {
 		res.Confidence = Low
@@ -376,6 +393,34 @@ func Sweep(a *acq.Acquisition, ch *recon.Channels, cfg SweepConfig) (*Result, er
 		res.Notes = append(res.Notes, "one unfocused transmit: diffuse echoes are nearly incoherent across the receive aperture (van Cittert-Zernike), so receive-only focus criteria carry little information; compounded steered waves or synthetic aperture restore it")
 	}
 	return res, nil
+}
+
+// intervalFrom turns bootstrap peaks into a standard error and a 95 %
+// interval around est, widened in quadrature by a rectangular systematic
+// component of half-width frac * est (standard uncertainty a / sqrt(3)).
+func intervalFrom(peaks []float64, est, frac float64) (se float64, ci [2]float64, sys float64) {
+	if len(peaks) < 2 {
+		return math.NaN(), [2]float64{math.NaN(), math.NaN()}, 0
+	}
+	sorted := append([]float64(nil), peaks...)
+	sort.Float64s(sorted)
+	mean := 0.0
+	for _, v := range sorted {
+		mean += v
+	}
+	mean /= float64(len(sorted))
+	ss := 0.0
+	for _, v := range sorted {
+		ss += (v - mean) * (v - mean)
+	}
+	se = math.Sqrt(ss / float64(len(sorted)-1))
+	lo, hi := quantile(sorted, 0.025), quantile(sorted, 0.975)
+	if frac > 0 {
+		sys = frac * est / math.Sqrt(3)
+	}
+	s := 1.96 * sys
+	dl, dh := math.Max(est-lo, 0), math.Max(hi-est, 0)
+	return se, [2]float64{est - math.Hypot(dl, s), est + math.Hypot(dh, s)}, sys
 }
 
 func scaleSums(s sums, w float64) sums {

@@ -1,0 +1,36 @@
+// Package aberration estimates near-field arrival-time error profiles: what
+// is left, element by element, of the focusing error once the bulk speed of
+// sound is known. A thin aberrating layer at the array (fat, muscle, the
+// chest or abdominal wall) delays every path that leaves or enters an
+// element by that element's error; the profile is the estimate of those
+// errors, which a beamformer adds back (recon.Corrected) to restore the
+// focus. It computes; it writes no files.
+//
+// Units are SI (s, m). Profiles are one value per element, in seconds, with
+// the sign convention of the acquisition folder: positive delays the echo.
+// The mean and the linear trend of a profile are not focusing errors (a time
+// shift and a steering of the beam); they are removed and reported apart.
+//
+// Method. The aperture-domain data of a patch (the delayed, phase-aligned
+// signals of every element before summation, compounded over events) carry
+// each element's residual delay as a phase rotation at the echoes' centre
+// frequency. The correlation of elements j and j+m over the patch's pixels
+// has phase w_c (phi_(j+m) - phi_j). The nearest-neighbour estimate (Flax &
+// O'Donnell 1988) integrates the lag-one differences across the array; the
+// many-pairs estimate (Liu & Waag 1994) solves the weighted least-squares
+// system of all differences up to a maximum lag, each weighted by its
+// correlation coefficient, which does not accumulate neighbour errors as a
+// random walk. Both iterate: correct, re-form, re-estimate the residual.
+//
+// References:
+//   - Flax SW, O'Donnell M. Phase-aberration correction using signals from
+//     point reflectors and diffuse scatterers: basic principles. IEEE TUFFC
+//     35(6), 1988.
+//   - Liu DL, Waag RC. Time-shift compensation of ultrasonic pulse focus
+//     degradation using least-mean-square error estimates of arrival time.
+//     JASA 95(1), 1994.
+//   - Mallart R, Fink M. The van Cittert-Zernike theorem in pulse echo
+//     measurements. JASA 90(5), 1991 (coherence of diffuse echoes).
+//   - Long W, Bottenus N, Trahey GE. Lag-one coherence as a metric for
+//     ultrasonic image quality. IEEE TUFFC 65(10), 2018.
+package aberration
