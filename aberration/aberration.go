@@ -10,6 +10,7 @@ import (
 
 	"celerity/acq"
 	"celerity/internal/dsp"
+	"celerity/internal/jsonx"
 	"celerity/recon"
 )
 
@@ -100,7 +101,7 @@ type PatchResult struct {
 	PatchMM [4]float64 `json:"patch_mm"`
 	// ProfileS is the patch's own profile, NaN where the patch does not see
 	// an element; mean and trend removed over the elements it sees.
-	ProfileS []float64 `json:"profile_s"`
+	ProfileS jsonx.Floats `json:"profile_s"`
 	Elements int       `json:"elements"`
 	// DisagreementS is the rms difference from the combined profile over the
 	// elements the patch sees (both detrended there).

@@ -9,6 +9,7 @@ import (
 
 	"celerity/acq"
 	"celerity/internal/dsp"
+	"celerity/internal/jsonx"
 	"celerity/recon"
 )
 
@@ -68,7 +69,9 @@ type Result struct {
 	SpeedMPS float64 `json:"speed_mps"`
 	// StdErrMPS is the bootstrap standard error.
 	StdErrMPS float64    `json:"std_err_mps"`
-	CI95MPS   [2]float64 `json:"ci95_mps"`
+	CI95MPS   [2]float64 `json:"-"`
+	// CI95 is CI95MPS for JSON (null where undefined).
+	CI95 jsonx.Floats `json:"ci95_mps"`
 	// SystematicMPS is the standard uncertainty of the systematic component
 	// included in CI95MPS (0 when disabled).
 	SystematicMPS float64 `json:"systematic_std_mps"`
@@ -389,6 +392,7 @@ func Sweep(a *acq.Acquisition, ch *recon.Channels, cfg SweepConfig) (*Result, er
 	if !(res.CI95MPS[0] <= res.SpeedMPS+1e-9 && res.SpeedMPS <= res.CI95MPS[1]+1e-9) {
 		lowf("the estimate lies outside its own bootstrap interval: the peak is unstable")
 	}
+	res.CI95 = jsonx.Floats(res.CI95MPS[:])
 	if singleUnfocused(a, cfg.Events) {
 		res.Notes = append(res.Notes, "one unfocused transmit: diffuse echoes are nearly incoherent across the receive aperture (van Cittert-Zernike), so receive-only focus criteria carry little information; compounded steered waves or synthetic aperture restore it")
 	}

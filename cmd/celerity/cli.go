@@ -27,10 +27,13 @@ type Globals struct {
 type CLI struct {
 	Globals
 
-	Simulate SimulateCmd `cmd:"" help:"Simulate an acquisition with known ground truth from a scenario file."`
-	Inspect  InspectCmd  `cmd:"" help:"Describe an acquisition folder: probe, sequence, sizes, depth range, truth."`
-	Image    ImageCmd    `cmd:"" help:"Form a delay-and-sum image (complex .npy and B-mode PNG) for an assumed speed or delay model."`
-	Demo     DemoCmd     `cmd:"" help:"Run the main job end to end on built-in simulated data."`
+	Simulate   SimulateCmd   `cmd:"" help:"Simulate an acquisition with known ground truth from a scenario file."`
+	Inspect    InspectCmd    `cmd:"" help:"Describe an acquisition folder: probe, sequence, sizes, depth range, truth."`
+	Image      ImageCmd      `cmd:"" help:"Form a delay-and-sum image (complex .npy and B-mode PNG) for an assumed speed or delay model."`
+	Speed      SpeedCmd      `cmd:"" help:"Estimate the speed of sound with a 95 % interval: focus sweep, by depth, or point targets."`
+	Water      WaterCmd      `cmd:"" help:"Print the speed of sound of pure water at a temperature."`
+	Aberration AberrationCmd `cmd:"" help:"Estimate the per-element arrival-time error profile (phase aberration) across the array."`
+	Demo       DemoCmd       `cmd:"" help:"Run the main job end to end on built-in simulated data."`
 }
 
 // exitError carries an exit status through kong's Run.

@@ -1,0 +1,42 @@
+// Package jsonx holds JSON helpers: numbers that may be undefined (NaN or
+// infinite) are written as null, which JSON readers in every language accept.
+package jsonx
+
+import (
+	"math"
+	"strconv"
+)
+
+// Float is a float64 written as null when it is not finite.
+type Float float64
+
+// MarshalJSON implements json.Marshaler.
+func (f Float) MarshalJSON() ([]byte, error) {
+	v := float64(f)
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return []byte("null"), nil
+	}
+	return strconv.AppendFloat(nil, v, 'g', -1, 64), nil
+}
+
+// Floats is a []float64 whose non-finite entries are written as null.
+type Floats []float64
+
+// MarshalJSON implements json.Marshaler.
+func (fs Floats) MarshalJSON() ([]byte, error) {
+	if fs == nil {
+		return []byte("null"), nil
+	}
+	b := []byte{'['}
+	for i, v := range fs {
+		if i > 0 {
+			b = append(b, ',')
+		}
+		if math.IsNaN(v) || math.IsInf(v, 0) {
+			b = append(b, "null"...)
+		} else {
+			b = strconv.AppendFloat(b, v, 'g', -1, 64)
+		}
+	}
+	return append(b, ']'), nil
+}
