@@ -102,7 +102,7 @@ type PatchResult struct {
 	// ProfileS is the patch's own profile, NaN where the patch does not see
 	// an element; mean and trend removed over the elements it sees.
 	ProfileS jsonx.Floats `json:"profile_s"`
-	Elements int       `json:"elements"`
+	Elements int          `json:"elements"`
 	// DisagreementS is the rms difference from the combined profile over the
 	// elements the patch sees (both detrended there).
 	DisagreementS float64 `json:"disagreement_s"`

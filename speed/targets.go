@@ -980,6 +980,7 @@ type tgtFitResult struct {
 	p       tgtParams
 	se      float64 // standard error of c, m/s
 	dcdt    float64 // change of c for a 1 ns later time reference, m/s
+	rho1    float64 // lag-one correlation of neighbouring residuals
 	n       int
 	rmsNS   float64
 	atBound bool
@@ -1180,6 +1181,27 @@ func (f *targetFitter) lm(tm *tgtModel, obs []tgtObs, p0 tgtParams, np int) tgtF
 		return tgtFitResult{err: errors.New("the fit is singular: the arrival times do not determine position and speed")}
 	}
 	s2 := ss / float64(n-np)
+	// Residuals that vary smoothly from element to element (an unmodelled
+	// arrival-time pattern rather than noise) carry less information than
+	// their number suggests: inflate the variance by the AR(1) factor
+	// (1 + rho1) / (1 - rho1) of their lag-one correlation between
+	// neighbouring elements of one event.
+	var num, den float64
+	for i := 1; i < n; i++ {
+		a, b := obs[i-1], obs[i]
+		if a.ev != b.ev || b.el-a.el != 1 {
+			continue
+		}
+		za, zb := r[i-1]*math.Sqrt(a.w), r[i]*math.Sqrt(b.w)
+		num += za * zb
+		den += (za*za + zb*zb) / 2
+	}
+	if den > 0 {
+		res.rho1 = num / den
+		if rho := math.Min(res.rho1, 0.98); rho > 0 {
+			s2 *= (1 + rho) / (1 - rho)
+		}
+	}
 	res.se = math.Sqrt(s2 * cov[2][2])
 	// Sensitivity of c to a common shift of every arrival time by 1 ns:
 	// du = (J^T W J)^-1 J^T W 1 (zero when the offset is fitted).
