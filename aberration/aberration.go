@@ -67,6 +67,9 @@ type Config struct {
 	MaxLag int
 	// Iterations caps correct / re-form / re-estimate rounds; default 6.
 	Iterations int
+	// Initial is a starting profile (s per element), e.g. from an earlier
+	// estimate; nil starts from zero.
+	Initial []float64
 	// TolS stops the iteration when the profile changes by less than this
 	// rms (s); default 0.2 ns.
 	TolS float64
@@ -233,6 +236,12 @@ func Estimate(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Result, erro
 		lags = 1
 	}
 	prof := make([]float64, nn)
+	if cfg.Initial != nil {
+		if len(cfg.Initial) != nn {
+			return nil, fmt.Errorf("aberration: initial profile has %d values for %d elements", len(cfg.Initial), nn)
+		}
+		copy(prof, cfg.Initial)
+	}
 	gather := func(profile []float64) error {
 		m, err := recon.NewCorrected(cfg.Model, profile)
 		if err != nil {

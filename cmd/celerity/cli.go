@@ -33,6 +33,7 @@ type CLI struct {
 	Speed      SpeedCmd      `cmd:"" help:"Estimate the speed of sound with a 95 % interval: focus sweep, by depth, or point targets."`
 	Water      WaterCmd      `cmd:"" help:"Print the speed of sound of pure water at a temperature."`
 	Aberration AberrationCmd `cmd:"" help:"Estimate the per-element arrival-time error profile (phase aberration) across the array."`
+	Correct    CorrectCmd    `cmd:"" help:"Estimate speed and profile, re-form the image and report before/after metrics (report.html)."`
 	Demo       DemoCmd       `cmd:"" help:"Run the main job end to end on built-in simulated data."`
 }
 

@@ -1,0 +1,238 @@
+package correction
+
+import (
+	"errors"
+	"fmt"
+	"math"
+
+	"celerity/aberration"
+	"celerity/acq"
+	"celerity/recon"
+	"celerity/speed"
+)
+
+// Config tunes Run.
+type Config struct {
+	Sweep      speed.SweepConfig
+	Aberration aberration.Config // its Model is set by Run
+	// Rounds caps the speed / profile alternation; default 4.
+	Rounds int
+	// SpeedTolMPS and ProfileTolS stop the alternation when a round changes
+	// the speed and the profile (rms) by less than these; defaults 0.5 m/s
+	// and 1 ns.
+	SpeedTolMPS float64
+	ProfileTolS float64
+	// NoAberration skips the profile: speed only.
+	NoAberration bool
+	// KeepCurvature keeps the quadratic part of the profile. By default it is
+	// removed before the profile is applied: across one aperture a quadratic
+	// delay is indistinguishable from a change of the speed of sound (a
+	// defocus), and leaving it in the profile lets the alternation trade one
+	// for the other; removed, the curvature belongs to the speed estimate.
+	KeepCurvature bool
+	// Progress, if not nil, reports the stage and its progress.
+	Progress func(stage string, done, total int)
+}
+
+// Round is one pass of the alternation.
+type Round struct {
+	SpeedMPS       float64    `json:"speed_mps"`
+	CI95MPS        [2]float64 `json:"ci95_mps"`
+	Confidence     string     `json:"confidence"`
+	ProfileRMSS    float64    `json:"profile_rms_s"`
+	ProfileChangeS float64    `json:"profile_change_s"`
+}
+
+// Outcome is the result of Run.
+type Outcome struct {
+	Speed      *speed.Result
+	Aberration *aberration.Result // nil with NoAberration
+	// Model is the corrected delay model: homogeneous at the estimated speed
+	// plus the profile.
+	Model  recon.DelayModel
+	Rounds []Round
+	// Converged tells whether the alternation settled within Rounds.
+	Converged bool
+	// ProfileS is the profile applied in Model (the aberration estimate
+	// without its quadratic part unless KeepCurvature).
+	ProfileS []float64
+}
+
+// RemoveQuadratic returns p minus its least-squares fit by a + b x + c x^2.
+func RemoveQuadratic(p, x []float64) []float64 {
+	var s [5]float64
+	var t [3]float64
+	for i, v := range p {
+		q := 1.0
+		for k := 0; k < 5; k++ {
+			s[k] += q
+			if k < 3 {
+				t[k] += q * v
+			}
+			q *= x[i]
+		}
+	}
+	m := [3][3]float64{{s[0], s[1], s[2]}, {s[1], s[2], s[3]}, {s[2], s[3], s[4]}}
+	c, ok := solve3(m, t)
+	out := make([]float64, len(p))
+	for i, v := range p {
+		if ok {
+			out[i] = v - c[0] - c[1]*x[i] - c[2]*x[i]*x[i]
+		} else {
+			out[i] = v
+		}
+	}
+	return out
+}
+
+func solve3(m [3][3]float64, b [3]float64) ([3]float64, bool) {
+	det := func(m [3][3]float64) float64 {
+		return m[0][0]*(m[1][1]*m[2][2]-m[1][2]*m[2][1]) - m[0][1]*(m[1][0]*m[2][2]-m[1][2]*m[2][0]) + m[0][2]*(m[1][0]*m[2][1]-m[1][1]*m[2][0])
+	}
+	d := det(m)
+	var x [3]float64
+	if d == 0 || math.IsNaN(d) {
+		return x, false
+	}
+	for k := range 3 {
+		mk := m
+		for r := range 3 {
+			mk[r][k] = b[r]
+		}
+		x[k] = det(mk) / d
+	}
+	return x, true
+}
+
+func elementX(els []acq.Element) []float64 {
+	x := make([]float64, len(els))
+	for i, e := range els {
+		x[i] = e.X
+	}
+	return x
+}
+
+func rmsOf(v []float64) float64 {
+	s := 0.0
+	for _, x := range v {
+		s += x * x
+	}
+	return math.Sqrt(s / float64(len(v)))
+}
+
+// Run estimates speed and profile by alternation: the speed is swept with
+// the current profile applied, then the profile is estimated at the new
+// speed, until both settle.
+func Run(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Outcome, error) {
+	if cfg.Rounds == 0 {
+		cfg.Rounds = 4
+	}
+	if cfg.Rounds < 1 || cfg.Rounds > 20 {
+		return nil, errors.New("correction: rounds must be between 1 and 20")
+	}
+	if cfg.SpeedTolMPS == 0 {
+		cfg.SpeedTolMPS = 0.5
+	}
+	if cfg.ProfileTolS == 0 {
+		cfg.ProfileTolS = 1e-9
+	}
+	els := a.Probe.Elements()
+	n := len(els)
+	prof := make([]float64, n)
+	out := &Outcome{}
+	prevSpeed := math.NaN()
+	stage := func(name string) func(int, int) {
+		if cfg.Progress == nil {
+			return nil
+		}
+		return func(d, t int) { cfg.Progress(name, d, t) }
+	}
+	for r := 0; r < cfg.Rounds; r++ {
+		sc := cfg.Sweep
+		cur := append([]float64(nil), prof...)
+		applied := r > 0 && !cfg.NoAberration
+		if applied {
+			sc.Model = func(c float64) (recon.DelayModel, error) {
+				return recon.NewCorrected(recon.NewHomogeneous(c, els), cur)
+			}
+		}
+		sc.Progress = stage(fmt.Sprintf("round %d: speed", r+1))
+		if r > 0 {
+			// later rounds refine around the previous estimate
+			sc.MinMPS = math.Max(sc.MinMPS, prevSpeed-30)
+			sc.MaxMPS = prevSpeed + 30
+			if cfg.Sweep.MaxMPS != 0 {
+				sc.MaxMPS = math.Min(sc.MaxMPS, cfg.Sweep.MaxMPS)
+			}
+			if sc.MinMPS == 0 {
+				sc.MinMPS = prevSpeed - 30
+			}
+			sc.CoarseStepMPS = 5
+		}
+		sr, err := speed.Sweep(a, ch, sc)
+		if err != nil {
+			return nil, fmt.Errorf("round %d: speed: %w", r+1, err)
+		}
+		out.Speed = sr
+		round := Round{SpeedMPS: sr.SpeedMPS, CI95MPS: sr.CI95MPS, Confidence: sr.Confidence}
+		if cfg.NoAberration {
+			out.Rounds = append(out.Rounds, round)
+			out.Converged = true
+			break
+		}
+		ac := cfg.Aberration
+		ac.Model = recon.NewHomogeneous(sr.SpeedMPS, els)
+		if r > 0 {
+			// refine from the previous profile
+			ac.Initial = append([]float64(nil), prof...)
+			if ac.Iterations == 0 {
+				ac.Iterations = 3
+			}
+		}
+		ac.Progress = stage(fmt.Sprintf("round %d: aberration", r+1))
+		ar, err := aberration.Estimate(a, ch, ac)
+		if err != nil {
+			return nil, fmt.Errorf("round %d: aberration: %w", r+1, err)
+		}
+		out.Aberration = ar
+		change := 0.0
+		for j := range prof {
+			d := ar.ProfileS[j] - prof[j]
+			change += d * d
+		}
+		change = math.Sqrt(change / float64(n))
+		next := ar.ProfileS
+		if !cfg.KeepCurvature {
+			next = RemoveQuadratic(next, elementX(els))
+		}
+		change = 0.0
+		for j := range prof {
+			d := next[j] - prof[j]
+			change += d * d
+		}
+		change = math.Sqrt(change / float64(n))
+		copy(prof, next)
+		round.ProfileRMSS, round.ProfileChangeS = rmsOf(prof), change
+		out.Rounds = append(out.Rounds, round)
+		if r > 0 && math.Abs(sr.SpeedMPS-prevSpeed) < cfg.SpeedTolMPS && change < cfg.ProfileTolS {
+			prevSpeed = sr.SpeedMPS
+			out.Converged = true
+			break
+		}
+		prevSpeed = sr.SpeedMPS
+	}
+	if out.Aberration != nil {
+		out.ProfileS = append([]float64(nil), prof...)
+	}
+	base := recon.NewHomogeneous(out.Speed.SpeedMPS, els)
+	if cfg.NoAberration {
+		out.Model = base
+		return out, nil
+	}
+	m, err := recon.NewCorrected(base, prof)
+	if err != nil {
+		return nil, err
+	}
+	out.Model = m
+	return out, nil
+}
