@@ -7,6 +7,7 @@ import (
 	"runtime"
 	"slices"
 	"sort"
+	"strings"
 	"sync"
 
 	"celerity/acq"
@@ -107,6 +108,13 @@ const (
 	// the pulse shape (a hundredth of a period, as acq.FitTolerance allows
 	// firing delays). Simulated Gaussian pulses stay within a quarter of it.
 	targetTimeRefFrac = 0.01
+	// targetMethodFrac is the half-width, as a fraction of the speed, of a
+	// rectangular systematic (type B) uncertainty of the method itself: on
+	// simulated wires its estimates stay within 1e-5 of the truth when the
+	// time reference is trusted and within about 1.5e-4 when an offset is
+	// fitted (the curvature of the arrival-time curve alone then carries
+	// the speed, and pulse-shape details of order 0.01 ns weigh more).
+	targetMethodFrac = 1e-4
 	// targetMaxRMSPeriods: a fit whose rms residual exceeds this many
 	// periods of the centre frequency has not found a point target (its
 	// phases slip by whole cycles); near-field aberrators leave some tens of
@@ -162,19 +170,24 @@ const (
 // [MinMPS, MaxMPS]; arrival times whose normalised residual lies beyond 4
 // robust standard deviations are dropped and the fit repeated. Measurement
 // and fit alternate three times. The covariance is s^2 (J^T W J)^-1 with
-// s^2 = sum w r^2 / (n - p). A fit that misses its arrival times by more
-// than a quarter period rms has found no point target, and one that lands
-// within 1 mm of a brighter target's is a duplicate; both are dropped.
+// s^2 = sum w r^2 / (n - p), inflated by (1 + rho) / (1 - rho) when the
+// residuals of neighbouring elements correlate (rho > 0: a smooth,
+// unmodelled pattern rather than noise). A fit that misses its arrival
+// times by more than a quarter period rms has found no point target, and
+// one that lands within 1 mm of a brighter target's is a duplicate; both
+// are dropped.
 //
 // Combination: the weighted mean of the targets' speeds, each weighted by
 // the inverse of its variance: the statistical one from the fit, plus, when
 // the time reference is trusted (no FitOffset), the effect on c of a
-// time-reference error of a hundredth of a period. That systematic part is
-// common to all targets and is reported as SystematicMPS, not averaged
-// down. When the speeds scatter more than their uncertainties allow
-// (chi-square test at 5 %), the standard error is inflated by
-// sqrt(chi^2 / dof) and Student's t with dof = targets - 1 replaces 1.96.
-// CI95MPS is the estimate +/- sqrt((k SE)^2 + (1.96 SystematicMPS)^2).
+// time-reference error of a hundredth of a period. That part is common to
+// all targets and is not averaged down; with a systematic uncertainty of
+// the method itself (rectangular, +/-1e-4 of the speed, the size of the
+// errors seen on simulated wires) it makes SystematicMPS. When the speeds
+// scatter more than their uncertainties allow (chi-square test at 5 %), the
+// standard error is inflated by sqrt(chi^2 / dof) and Student's t with
+// dof = targets - 1 replaces 1.96. CI95MPS is the estimate
+// +/- sqrt((k SE)^2 + (1.96 SystematicMPS)^2).
 // Targets fitted with fewer than 16 arrival times are reported but left out
 // of the combination. Confidence is "low", with the reason in Notes, when
 // the 95 % half-width exceeds MaxConfidentHalfWidth or a fit stops at a
@@ -236,7 +249,11 @@ func Targets(a *acq.Acquisition, ch *recon.Channels, cfg TargetConfig) (*TargetR
 			continue
 		}
 		if lim := targetMaxRMSPeriods / a.Probe.CenterFrequencyHz * 1e9; o.fit.RMSResidualNS > lim {
-			res.Notes = append(res.Notes, fmt.Sprintf("%s: arrival times misfit by %.0f ns rms (over a quarter period): not a point target; dropped", where, o.fit.RMSResidualNS))
+			why := "not a point target"
+			if o.atBound {
+				why = fmt.Sprintf("the fit stops at the speed bound %g m/s", o.fit.SpeedMPS)
+			}
+			res.Notes = append(res.Notes, fmt.Sprintf("%s: arrival times misfit by %.0f ns rms (over a quarter period): %s; dropped", where, o.fit.RMSResidualNS, why))
 			continue
 		}
 		dup := false
@@ -264,7 +281,8 @@ func Targets(a *acq.Acquisition, ch *recon.Channels, cfg TargetConfig) (*TargetR
 		total += o.fit.Channels
 	}
 	if len(use) == 0 {
-		return nil, fmt.Errorf("%w: %d target(s) detected, none fitted with %d arrival times or more", ErrNoTargets, len(cands), targetMinChannels)
+		return nil, fmt.Errorf("%w: %d target(s) detected, none usable (%s)",
+			ErrNoTargets, len(cands), strings.Join(res.Notes[1:], "; "))
 	}
 	res.Confidence = High
 	lowf := func(format string, args ...any) {
@@ -292,6 +310,9 @@ func Targets(a *acq.Acquisition, ch *recon.Channels, cfg TargetConfig) (*TargetR
 	}
 	sigmaT := targetTimeRefFrac / a.Probe.CenterFrequencyHz * 1e9 // ns
 	comb := combineSpeeds(speeds, ses, sens, sigmaT)
+	// The method's own systematic part (rectangular, half-width
+	// targetMethodFrac of the speed) joins the time reference's.
+	comb.sys = math.Hypot(comb.sys, targetMethodFrac*comb.mean/math.Sqrt(3))
 	res.SpeedMPS, res.StdErrMPS, res.SystematicMPS = comb.mean, comb.se, comb.sys
 	k := 1.96
 	if comb.inflated {
@@ -403,8 +424,7 @@ func targetPulseWidth(p *acq.Probe) float64 {
 
 // targetCandidate is a detected target at the initial speed.
 type targetCandidate struct {
-	x, z       float64
-	amp        float64
+	x, z       float64 // m
 	contrastDB float64
 }
 
@@ -518,7 +538,7 @@ func detectTargets(a *acq.Acquisition, ch *recon.Channels, cfg *TargetConfig, r 
 		lg := func(v float64) float64 { return math.Log(math.Max(v, 1e-300)) }
 		ox, _ := dsp.ParabolicPeak(lg(at(p.i, p.j-1)), lg(p.v), lg(at(p.i, p.j+1)))
 		oz, _ := dsp.ParabolicPeak(lg(at(p.i-1, p.j)), lg(p.v), lg(at(p.i+1, p.j)))
-		out = append(out, targetCandidate{x: x + ox*d, z: z + oz*d, amp: p.v, contrastDB: contrast})
+		out = append(out, targetCandidate{x: x + ox*d, z: z + oz*d, contrastDB: contrast})
 	}
 	return out, nil
 }
@@ -980,7 +1000,6 @@ type tgtFitResult struct {
 	p       tgtParams
 	se      float64 // standard error of c, m/s
 	dcdt    float64 // change of c for a 1 ns later time reference, m/s
-	rho1    float64 // lag-one correlation of neighbouring residuals
 	n       int
 	rmsNS   float64
 	atBound bool
@@ -988,7 +1007,9 @@ type tgtFitResult struct {
 }
 
 // fit fits the arrival times by weighted Levenberg-Marquardt from p,
-// dropping robust outliers and refitting until none is left.
+// dropping robust outliers (normalised residuals beyond
+// targetOutlierSigmas robust standard deviations of the median) and
+// refitting until the kept set settles, at most eight times.
 func (f *targetFitter) fit(obs []tgtObs, p tgtParams) tgtFitResult {
 	tm := f.model()
 	use := make([]bool, len(obs))
@@ -1083,8 +1104,8 @@ func (f *targetFitter) lm(tm *tgtModel, obs []tgtObs, p0 tgtParams, np int) tgtF
 		for i, o := range obs {
 			t, ok := tm.time(p, o.ev, o.el)
 			if !ok {
-				// the path left the valid set: extrapolate nothing, just
-				// compute the geometric time without the checks
+				// a trial point from which the path is no longer valid:
+				// the model is still defined, so keep the fit smooth
 				t = tm.rawTime(p, o.ev, o.el)
 			}
 			r[i] = (o.t - t) * 1e9
@@ -1197,8 +1218,7 @@ func (f *targetFitter) lm(tm *tgtModel, obs []tgtObs, p0 tgtParams, np int) tgtF
 		den += (za*za + zb*zb) / 2
 	}
 	if den > 0 {
-		res.rho1 = num / den
-		if rho := math.Min(res.rho1, 0.98); rho > 0 {
+		if rho := math.Min(num/den, 0.98); rho > 0 {
 			s2 *= (1 + rho) / (1 - rho)
 		}
 	}

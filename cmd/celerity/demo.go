@@ -45,11 +45,7 @@ func (c *DemoCmd) Run(g *Globals) error {
 		return err
 	}
 	defer out.Abort()
-	say := func(format string, args ...any) {
-		if !c.JSON || true {
-			fmt.Fprintf(g.stderr, format+"\n", args...)
-		}
-	}
+	say := func(format string, args ...any) { fmt.Fprintf(g.stderr, format+"\n", args...) }
 	say("celerity demo: %s", sc.Description)
 	say("  %s", Caution)
 	t0 := time.Now()
@@ -119,12 +115,31 @@ func (c *DemoCmd) Run(g *Globals) error {
 		return err
 	}
 	say("2. imaged at the scanner's 1540 m/s and at the true %.0f m/s -> image-*/, compare.png", trueC)
+
+	corDir := filepath.Join(out.Path(), "correct")
+	if err := os_MkdirAll(corDir); err != nil {
+		return err
+	}
+	res2, err := runCorrection(g, a, res.truth, nil, 4, corDir, acqDir)
+	if err != nil {
+		return err
+	}
+	say("3. estimated the speed of sound: %.1f m/s (95 %% interval %.1f to %.1f, %s confidence); true %.0f m/s",
+		res2.SpeedMPS, res2.CI95[0], res2.CI95[1], res2.Confidence, trueC)
+	if res2.Truth != nil {
+		say("4. estimated the near-field profile: %.1f ns rms; against the true screen: error %.1f ns rms, correlation %.3f",
+			res2.ProfileRMS*1e9, res2.Truth["profile_error_rms_s"]*1e9, res2.Truth["profile_correlation"])
+	}
+	say("5. re-formed the image with the corrected delays: lateral width %.3f -> %.3f mm (ideal %.3f); report -> correct/report.html",
+		res2.Before["lateral_width_mm"], res2.After["lateral_width_mm"], res2.Ideal["lateral_width_mm"])
 	if err := out.Commit(); err != nil {
 		return err
 	}
-	say("done in %.1f s; results in %s", time.Since(t0).Seconds(), c.Out)
+	say("done in %.1f s; results in %s (open %s)", time.Since(t0).Seconds(), c.Out, filepath.Join(c.Out, "correct", "report.html"))
 	if c.JSON {
-		return printJSON(g.stdout, map[string]any{"out": c.Out, "true_speed_mps": trueC, "seconds": time.Since(t0).Seconds()})
+		return printJSON(g.stdout, map[string]any{"out": c.Out, "true_speed_mps": trueC, "speed_mps": res2.SpeedMPS,
+			"ci95_mps": res2.CI95, "confidence": res2.Confidence, "profile_rms_s": res2.ProfileRMS, "truth": res2.Truth,
+			"before": res2.Before, "after": res2.After, "ideal": res2.Ideal, "seconds": time.Since(t0).Seconds()})
 	}
 	return nil
 }
