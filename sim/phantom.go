@@ -24,9 +24,12 @@ func (r Region) Area() float64 { return (r.X1 - r.X0) * (r.Z1 - r.Z0) }
 // ResolutionCell returns the lateral and axial sizes (m) of the resolution
 // cell used to count scatterers: laterally one wavelength (the -6 dB width
 // 0.886 lambda F# of a two-way focused aperture at F# near 1), axially the -6 dB
-// pulse-echo envelope length c * 4 ln2 / (pi B f0) / 2. This is a small cell,
-// so a density "per cell" is conservative: the speckle is fully developed
-// whatever the imaging F-number.
+// pulse-echo envelope length c * 4 ln2 / (pi B f0) / 2. Channel data and
+// images with a coarse point-spread function gather many cells and show fully
+// developed speckle (envelope mean/std 1.91) at 10 per cell; an image whose
+// point-spread function is about one such cell (synthetic aperture at a low
+// F-number) needs several tens per cell for the same statistics, because the
+// scatterer amplitudes, not only their phases, then vary from cell to cell.
 func ResolutionCell(p Pulse, c float64) (lateral, axial float64) {
 	return c / p.CenterHz, c * p.EnvelopeWidth() / 2
 }

@@ -256,7 +256,7 @@ func newDepositor(p *plan, e int) *depositor {
 // In baseband, the wave from firing element i reaches the scatterer at
 // t_i = d_i + phi_i + tau_i as the impulse w_i g_i exp(-j w0 t_i) (the RF is
 // Re{exp(j w0 t) (impulses * envelope)}). Consecutive firing elements whose
-// arrivals lie within a quarter of the envelope's sigma are merged into one
+// arrivals lie within a tenth of the envelope's sigma are merged into one
 // impulse at their amplitude-weighted mean time, keeping every element's
 // phase exactly; only their envelopes are merged. The echo of each such
 // impulse reaches element j later by tau_j + phi_j with the extra phasor
