@@ -34,6 +34,7 @@ type CLI struct {
 	Water      WaterCmd      `cmd:"" help:"Print the speed of sound of pure water at a temperature."`
 	Aberration AberrationCmd `cmd:"" help:"Estimate the per-element arrival-time error profile (phase aberration) across the array."`
 	Correct    CorrectCmd    `cmd:"" help:"Estimate speed and profile, re-form the image and report before/after metrics (report.html)."`
+	Compare    CompareCmd    `cmd:"" help:"Measure two images or acquisitions side by side with the same regions and targets."`
 	Demo       DemoCmd       `cmd:"" help:"Run the main job end to end on built-in simulated data."`
 }
 
