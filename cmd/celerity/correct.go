@@ -65,15 +65,6 @@ type correctOutput struct {
 	Caution    string                             `json:"caution"`
 }
 
-type shot struct {
-	name  string
-	title string
-	model recon.DelayModel
-	c     float64 // face speed, for scaling truth coordinates
-	img   []complex64
-	m     correction.ImageMetrics
-}
-
 // Run runs the command.
 func (c *CorrectCmd) Run(g *Globals) error {
 	a, err := acq.Load(c.Dir)
@@ -143,144 +134,23 @@ func runCorrection(g *Globals, a *acq.Acquisition, truth *acq.Truth, pairs []met
 	if !oc.Converged {
 		res.Notes = append(res.Notes, fmt.Sprintf("the speed / profile alternation had not settled after %d rounds", len(oc.Rounds)))
 	}
-	els := a.Probe.Elements()
-	cEst := oc.Speed.SpeedMPS
-	shots := []*shot{
-		{name: "before", title: fmt.Sprintf("before: %.0f m/s, no profile", a.AssumedSpeedMPS), model: recon.NewHomogeneous(a.AssumedSpeedMPS, els), c: a.AssumedSpeedMPS},
-		{name: "after", title: fmt.Sprintf("after: %.1f m/s + profile", cEst), model: oc.Model, c: cEst},
-	}
-	trueC := 0.0
-	if truth != nil {
-		trueC = truth.SpeedMPS
-		var ideal recon.DelayModel
-		if len(truth.Layers) > 0 {
-			l, err := recon.NewLayered(truth.Layers, els)
-			if err != nil {
-				return nil, err
-			}
-			ideal = l
-			trueC = truth.MeanSpeed(0.03)
-		} else {
-			ideal = recon.NewHomogeneous(truth.SpeedMPS, els)
-		}
-		if truth.Screen != nil && len(truth.Screen.DelaysS) == len(els) {
-			if ideal, err = recon.NewCorrected(ideal, truth.Screen.DelaysS); err != nil {
-				return nil, err
-			}
-		}
-		shots = append(shots, &shot{name: "ideal", title: "ideal: true medium and screen", model: ideal, c: trueC})
-	}
-	grid, err := defaultGrid(a, cEst)
+	grid, err := defaultGrid(a, oc.Speed.SpeedMPS)
 	if err != nil {
 		return nil, err
 	}
-	imf := imagingFlags{FNumber: 1.5, Window: "hann", Interp: "linear", DynamicDB: 60}
-	rcfg, _ := imf.config()
-	// Truth positions are given in the true medium; an image formed at
-	// speed c shows an echo at depth z c / c_true (and the estimate's image
-	// at z c_est / c_true), so targets and regions are looked for there.
-	refC := trueC
-	if refC == 0 {
-		refC = cEst
+	ev, err := correction.Evaluate(a, ch, oc, truth, correction.EvalConfig{Grid: &grid, Pairs: pairs})
+	if err != nil {
+		return nil, err
 	}
-	var targets [][2]float64
-	if truth != nil {
-		targets = truth.TargetsM
-		if pairs == nil && len(truth.Inclusions) > 0 {
-			var cs [][2]float64
-			var rs []float64
-			for _, in := range truth.Inclusions {
-				cs = append(cs, in.CenterM)
-				rs = append(rs, in.RadiusM)
-			}
-			pairs = metrics.PairsFromInclusions(cs, rs)
-		}
+	for _, s := range ev.Shots {
+		res.Details[s.Name] = s.Metrics
 	}
-	ref := 0.0
-	for _, s := range shots {
-		if s.img, err = formImage(a, ch, &grid, s.model, rcfg); err != nil {
-			return nil, err
-		}
-		ref = math.Max(ref, maxEnvelope(s.img))
-		scale := s.c / refC
-		var tg [][2]float64
-		for _, t := range targets {
-			tg = append(tg, [2]float64{t[0], t[1] * scale})
-		}
-		var ps []metrics.RegionPair
-		for _, p := range pairs {
-			ps = append(ps, scalePair(p, scale))
-		}
-		if s.m, err = correction.Measure(&grid, s.img, tg, 1.5e-3, ps); err != nil {
-			return nil, err
-		}
-		res.Details[s.name] = s.m
-	}
-	res.Before = shots[0].m.Summary()
-	res.After = shots[1].m.Summary()
-	if len(shots) > 2 {
-		res.Ideal = shots[2].m.Summary()
-		res.Recovered = map[string]float64{}
-		if b, ok := res.Before["lateral_width_mm"]; ok {
-			if i := res.Ideal["lateral_width_mm"]; b-i > 0 {
-				res.Recovered["lateral_width"] = (b - res.After["lateral_width_mm"]) / (b - i)
-			}
-		}
-		for k, i := range res.Ideal {
-			if strings.HasSuffix(k, "_gcnr") {
-				b := res.Before[k]
-				if i-b > 0 {
-					res.Recovered[strings.TrimSuffix(k, "_gcnr")+"_gcnr"] = (res.After[k] - b) / (i - b)
-				}
-			}
-		}
-	}
-	if truth != nil {
-		res.Truth = map[string]float64{"speed_mps": trueC, "speed_error_mps": cEst - trueC}
-		if truth.Screen != nil && res.ProfileS != nil {
-			x := make([]float64, len(els))
-			for i, e := range els {
-				x[i] = e.X
-			}
-			e, r, tr := profileVsTruth(res.ProfileS, truth.Screen.DelaysS, x)
-			res.Truth["profile_rms_s"] = tr
-			res.Truth["profile_error_rms_s"] = e
-			res.Truth["profile_correlation"] = r
-		}
-	}
+	res.Before, res.After, res.Ideal, res.Recovered, res.Truth = ev.Before, ev.After, ev.Ideal, ev.Recovered, ev.Truth
 	res.Seconds = time.Since(t0).Seconds()
-	if err := writeCorrectFiles(dir, a, src, &grid, shots, oc, res, targets, refC); err != nil {
+	if err := writeCorrectFiles(dir, a, src, ev, oc, res); err != nil {
 		return nil, err
 	}
 	return res, nil
-}
-
-// scalePair moves a region pair's depths by scale (circles and annuli by
-// their centres, rectangles by their edges).
-func scalePair(p metrics.RegionPair, scale float64) metrics.RegionPair {
-	return metrics.RegionPair{Name: p.Name, Inside: scaleRegion(p.Inside, scale), Outside: scaleRegion(p.Outside, scale)}
-}
-
-func scaleRegion(r metrics.Region, s float64) metrics.Region {
-	switch v := r.(type) {
-	case metrics.Circle:
-		v.CZ *= s
-		return v
-	case metrics.Annulus:
-		v.CZ *= s
-		return v
-	case metrics.Rect:
-		v.Z0 *= s
-		v.Z1 *= s
-		return v
-	case metrics.Difference:
-		out := metrics.Difference{Base: scaleRegion(v.Base, s)}
-		for _, h := range v.Holes {
-			out.Holes = append(out.Holes, scaleRegion(h, s))
-		}
-		return out
-	}
-	return r
 }
 
 func sortedKeys(m map[string]float64) []string {
@@ -328,19 +198,20 @@ func correctText(r *correctOutput, out string) string {
 }
 
 // lateralPlot draws the envelope (dB) along x through each target, for each image.
-func lateralPlot(grid *recon.Grid, shots []*shot, targets [][2]float64, refC float64) report.LinePlot {
+func lateralPlot(ev *correction.Evaluation) report.LinePlot {
+	grid, shots, targets, refC := ev.Grid, ev.Shots, ev.Targets, ev.RefSpeedMPS
 	lp := report.LinePlot{Title: "lateral profiles through the point targets", XLabel: "x relative to the target (mm)", YLabel: "envelope (dB re image peak)"}
 	for ti, t := range targets {
 		if ti >= 3 {
 			break
 		}
 		for _, s := range shots {
-			env := recon.Envelope(s.img)
+			env := recon.Envelope(s.Image)
 			peak := 0.0
 			for _, v := range env {
 				peak = math.Max(peak, v)
 			}
-			z := t[1] * s.c / refC
+			z := t[1] * s.SpeedMPS / refC
 			// nearest row
 			iz := 0
 			for i, zz := range grid.Z {
@@ -367,7 +238,7 @@ func lateralPlot(grid *recon.Grid, shots []*shot, targets [][2]float64, refC flo
 				xs = append(xs, (x-t[0])*1e3)
 				ys = append(ys, 20*math.Log10(math.Max(v, 1e-12)/peak))
 			}
-			lp.Series = append(lp.Series, report.Series{Name: fmt.Sprintf("target %d, %s", ti+1, s.name), X: xs, Y: ys, Dashed: s.name == "before"})
+			lp.Series = append(lp.Series, report.Series{Name: fmt.Sprintf("target %d, %s", ti+1, s.Name), X: xs, Y: ys, Dashed: s.Name == "before"})
 		}
 	}
 	return lp
@@ -383,24 +254,25 @@ func rowMaxNear(env []float64, g *recon.Grid, row int, x0 float64) float64 {
 	return m
 }
 
-func writeCorrectFiles(dir string, a *acq.Acquisition, src string, grid *recon.Grid, shots []*shot, oc *correction.Outcome, res *correctOutput, targets [][2]float64, refC float64) error {
+func writeCorrectFiles(dir string, a *acq.Acquisition, src string, ev *correction.Evaluation, oc *correction.Outcome, res *correctOutput) error {
+	grid, targets := ev.Grid, ev.Targets
 	ref := 0.0
-	for _, s := range shots {
-		ref = math.Max(ref, maxEnvelope(s.img))
+	for _, s := range ev.Shots {
+		ref = math.Max(ref, maxEnvelope(s.Image))
 	}
 	var panels []report.Image
-	for _, s := range shots {
+	for _, s := range ev.Shots {
 		var marks []report.Mark
 		for i, t := range targets {
-			marks = append(marks, report.Mark{XM: t[0], ZM: t[1] * s.c / refC, Label: fmt.Sprintf("T%d", i+1)})
+			marks = append(marks, report.Mark{XM: t[0], ZM: t[1] * s.SpeedMPS / ev.RefSpeedMPS, Label: fmt.Sprintf("T%d", i+1)})
 		}
-		bm := bmodeImage(grid, s.img, ref, 60, s.title)
+		bm := bmodeImage(grid, s.Image, ref, 60, s.Title)
 		panels = append(panels, bm)
-		sub := filepath.Join(dir, s.name)
+		sub := filepath.Join(dir, s.Name)
 		if err := os_MkdirAll(sub); err != nil {
 			return err
 		}
-		if err := writeImageFiles(sub, "", grid, s.img, bm, report.BModeOptions{DynamicRangeDB: 60, Marks: marks}); err != nil {
+		if err := writeImageFiles(sub, "", grid, s.Image, bm, report.BModeOptions{DynamicRangeDB: 60, Marks: marks}); err != nil {
 			return err
 		}
 	}
@@ -414,7 +286,9 @@ func writeCorrectFiles(dir string, a *acq.Acquisition, src string, grid *recon.G
 		return err
 	}
 	if oc.Aberration != nil {
-		ao := &aberrationOutput{Result: oc.Aberration, Model: oc.Model.String(), SpeedMPS: oc.Speed.SpeedMPS, Caution: Caution}
+		applied := *oc.Aberration
+		applied.ProfileS = oc.ProfileS
+		ao := &aberrationOutput{Result: &applied, Model: oc.Model.String(), SpeedMPS: oc.Speed.SpeedMPS, Caution: Caution}
 		for _, e := range a.Probe.Elements() {
 			ao.ElementXM = append(ao.ElementXM, e.X)
 		}
@@ -428,7 +302,7 @@ func writeCorrectFiles(dir string, a *acq.Acquisition, src string, grid *recon.G
 	}
 	if len(targets) > 0 {
 		if err := atomicfile.Write(filepath.Join(dir, "lateral.png"), true, func(w io.Writer) error {
-			return report.LinePNG(w, lateralPlot(grid, shots, targets, refC))
+			return report.LinePNG(w, lateralPlot(ev))
 		}); err != nil {
 			return err
 		}
