@@ -60,11 +60,11 @@ func Evaluate(a *acq.Acquisition, ch *recon.Channels, oc *Outcome, truth *acq.Tr
 	cEst := oc.Speed.SpeedMPS
 	ev := &Evaluation{Pairs: cfg.Pairs}
 	ev.Shots = []*Shot{
-		{Name: "before", Title: fmt.Sprintf("before: %.0f m/s, no profile", a.AssumedSpeedMPS), Model: recon.NewHomogeneous(a.AssumedSpeedMPS, els), SpeedMPS: a.AssumedSpeedMPS},
-		{Name: "after", Title: fmt.Sprintf("after: %.1f m/s + profile", cEst), Model: oc.Model, SpeedMPS: cEst},
+		{Name: "before", Title: fmt.Sprintf("before (%.0f m/s)", a.AssumedSpeedMPS), Model: recon.NewHomogeneous(a.AssumedSpeedMPS, els), SpeedMPS: a.AssumedSpeedMPS},
+		{Name: "after", Title: fmt.Sprintf("after (%.0f m/s + profile)", cEst), Model: oc.Model, SpeedMPS: cEst},
 	}
 	if oc.Aberration == nil {
-		ev.Shots[1].Title = fmt.Sprintf("after: %.1f m/s", cEst)
+		ev.Shots[1].Title = fmt.Sprintf("after (%.0f m/s)", cEst)
 	}
 	trueC := 0.0
 	if truth != nil {
@@ -86,7 +86,7 @@ func Evaluate(a *acq.Acquisition, ch *recon.Channels, oc *Outcome, truth *acq.Tr
 				return nil, err
 			}
 		}
-		ev.Shots = append(ev.Shots, &Shot{Name: "ideal", Title: "ideal: true medium and screen", Model: ideal, SpeedMPS: trueC})
+		ev.Shots = append(ev.Shots, &Shot{Name: "ideal", Title: "ideal (truth)", Model: ideal, SpeedMPS: trueC})
 		ev.Targets = truth.TargetsM
 		if ev.Pairs == nil && len(truth.Inclusions) > 0 {
 			var cs [][2]float64

@@ -310,7 +310,7 @@ func writeCorrectFiles(dir string, a *acq.Acquisition, src string, ev *correctio
 	if err := atomicfile.Write(filepath.Join(dir, "metrics.json"), true, func(w io.Writer) error { return printJSON(w, res) }); err != nil {
 		return err
 	}
-	return atomicfile.Write(filepath.Join(dir, "metrics.csv"), true, func(w io.Writer) error {
+	if err := atomicfile.Write(filepath.Join(dir, "metrics.csv"), true, func(w io.Writer) error {
 		fmt.Fprintln(w, "metric,before,after,ideal")
 		for _, k := range sortedKeys(res.After) {
 			iv := ""
@@ -320,7 +320,10 @@ func writeCorrectFiles(dir string, a *acq.Acquisition, src string, ev *correctio
 			fmt.Fprintf(w, "%s,%g,%g,%s\n", k, res.Before[k], res.After[k], iv)
 		}
 		return nil
-	})
+	}); err != nil {
+		return err
+	}
+	return writeReportHTML(dir, a, src, ev, oc, res)
 }
 
 func dedupe(v []string) []string {
