@@ -23,8 +23,8 @@ const (
 // Layer is one horizontal layer of the medium, from the array face down.
 // The last layer has no thickness (it extends to infinity).
 type Layer struct {
-	ThicknessM float64 // 0 for the last layer
-	SpeedMPS   float64
+	ThicknessM float64 `json:"thickness_m"` // 0 for the last layer
+	SpeedMPS   float64 `json:"speed_mps"`
 }
 
 // Screen is a near-field phase screen: a per-element arrival-time error added

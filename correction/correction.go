@@ -24,6 +24,11 @@ type Config struct {
 	ProfileTolS float64
 	// NoAberration skips the profile: speed only.
 	NoAberration bool
+	// Homogeneous keeps a single bulk speed. By default, once the
+	// alternation settles, the speed is also resolved by depth (speed.ByDepth)
+	// and, when it finds distinct layers with high confidence, the bulk model
+	// becomes those layers and the profile is refined on top of them.
+	Homogeneous bool
 	// KeepCurvature keeps the quadratic part of the profile. By default it is
 	// removed before the profile is applied: across one aperture a quadratic
 	// delay is indistinguishable from a change of the speed of sound (a
@@ -53,6 +58,10 @@ type Outcome struct {
 	Rounds []Round
 	// Converged tells whether the alternation settled within Rounds.
 	Converged bool
+	// Depth is the depth-resolved estimate (nil when not run), and Layers the
+	// layers used in Model when they replaced the homogeneous speed.
+	Depth  *speed.DepthResult
+	Layers []acq.Layer
 	// ProfileS is the profile applied in Model (the aberration estimate
 	// without its quadratic part unless KeepCurvature).
 	ProfileS []float64
@@ -224,10 +233,22 @@ func Run(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Outcome, error) {
 	if out.Aberration != nil {
 		out.ProfileS = append([]float64(nil), prof...)
 	}
-	base := recon.NewHomogeneous(out.Speed.SpeedMPS, els)
+	var base recon.DelayModel = recon.NewHomogeneous(out.Speed.SpeedMPS, els)
+	if !cfg.Homogeneous {
+		layered, err := refineLayers(a, ch, &cfg, out, prof)
+		if err != nil {
+			return nil, err
+		}
+		if layered != nil {
+			base = layered
+		}
+	}
 	if cfg.NoAberration {
 		out.Model = base
 		return out, nil
+	}
+	if out.Layers != nil {
+		out.ProfileS = append([]float64(nil), prof...)
 	}
 	m, err := recon.NewCorrected(base, prof)
 	if err != nil {
@@ -235,4 +256,66 @@ func Run(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Outcome, error) {
 	}
 	out.Model = m
 	return out, nil
+}
+
+// refineLayers resolves the speed by depth with the current profile applied;
+// when the merged layers are distinct and confident, it returns the layered
+// model and refines the profile (in place) on top of it.
+func refineLayers(a *acq.Acquisition, ch *recon.Channels, cfg *Config, out *Outcome, prof []float64) (recon.DelayModel, error) {
+	els := a.Probe.Elements()
+	sc := cfg.Sweep
+	cur := append([]float64(nil), prof...)
+	if !cfg.NoAberration {
+		sc.Model = func(c float64) (recon.DelayModel, error) {
+			return recon.NewCorrected(recon.NewHomogeneous(c, els), cur)
+		}
+	}
+	if cfg.Progress != nil {
+		sc.Progress = func(d, t int) { cfg.Progress("speed by depth", d, t) }
+	}
+	dr, err := speed.ByDepth(a, ch, speed.DepthConfig{SweepConfig: sc})
+	if err != nil {
+		// depth resolution is a refinement: keep the homogeneous model
+		return nil, nil
+	}
+	out.Depth = dr
+	if dr.Confidence != speed.High || len(dr.Layers) < 2 {
+		return nil, nil
+	}
+	var layers []acq.Layer
+	for i, l := range dr.Layers {
+		al := acq.Layer{SpeedMPS: l.SpeedMPS}
+		if i < len(dr.Layers)-1 {
+			al.ThicknessM = l.BottomM - l.TopM
+		}
+		layers = append(layers, al)
+	}
+	lm, err := recon.NewLayered(layers, els)
+	if err != nil {
+		return nil, nil
+	}
+	out.Layers = layers
+	if cfg.NoAberration {
+		return lm, nil
+	}
+	ac := cfg.Aberration
+	ac.Model = lm
+	ac.Initial = append([]float64(nil), prof...)
+	if ac.Iterations == 0 {
+		ac.Iterations = 3
+	}
+	if cfg.Progress != nil {
+		ac.Progress = func(d, t int) { cfg.Progress("profile on layers", d, t) }
+	}
+	ar, err := aberration.Estimate(a, ch, ac)
+	if err != nil {
+		return nil, err
+	}
+	out.Aberration = ar
+	next := ar.ProfileS
+	if !cfg.KeepCurvature {
+		next = RemoveQuadratic(next, elementX(els))
+	}
+	copy(prof, next)
+	return lm, nil
 }

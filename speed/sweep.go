@@ -44,11 +44,30 @@ type SweepConfig struct {
 	// Model returns the delay model for an assumed speed; nil means a
 	// homogeneous medium. Use it to sweep with a correction profile applied.
 	Model func(c float64) (recon.DelayModel, error)
-	// Events restricts the events used; nil means all.
+	// Events restricts the events used; nil means all of them, or for long
+	// sequences (synthetic aperture) an even subset of MaxEvents.
 	Events []int
 	// Progress, if not nil, is called after each speed is evaluated.
 	Progress func(done, total int)
 	Workers  int
+}
+
+// MaxEvents is the number of events a sweep uses by default when a sequence
+// holds more (synthetic aperture): an even subset keeps the transmit
+// aperture while cutting the work.
+const MaxEvents = 32
+
+// EvenEvents returns nil when n <= max, else max indices spread evenly over
+// 0..n-1 (both ends included).
+func EvenEvents(n, max int) []int {
+	if n <= max || max < 2 {
+		return nil
+	}
+	out := make([]int, max)
+	for i := range out {
+		out[i] = int(math.Round(float64(i) * float64(n-1) / float64(max-1)))
+	}
+	return out
 }
 
 // MaxPixels bounds the pixels of a sweep region.
@@ -143,6 +162,9 @@ func (cfg *SweepConfig) defaults(a *acq.Acquisition) error {
 	}
 	if cfg.SystematicFrac == 0 {
 		cfg.SystematicFrac = 0.001
+	}
+	if cfg.Events == nil {
+		cfg.Events = EvenEvents(a.NumEvents(), MaxEvents)
 	}
 	if cfg.Model == nil {
 		els := a.Probe.Elements()

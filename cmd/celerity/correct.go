@@ -53,6 +53,7 @@ type correctOutput struct {
 	ProfileS   []float64                          `json:"profile_s"`
 	ProfileRMS float64                            `json:"profile_rms_s"`
 	Rounds     []correction.Round                 `json:"rounds"`
+	Layers     []acq.Layer                        `json:"layers,omitempty"`
 	Converged  bool                               `json:"converged"`
 	Before     map[string]float64                 `json:"before"`
 	After      map[string]float64                 `json:"after"`
@@ -122,6 +123,10 @@ func runCorrection(g *Globals, a *acq.Acquisition, truth *acq.Truth, pairs []met
 	res := &correctOutput{SpeedMPS: oc.Speed.SpeedMPS, CI95: jsonx.Floats(oc.Speed.CI95MPS[:]), Confidence: oc.Speed.Confidence,
 		Rounds: oc.Rounds, Converged: oc.Converged, Details: map[string]correction.ImageMetrics{}, Caution: Caution}
 	res.Notes = append(res.Notes, oc.Speed.Notes...)
+	res.Layers = oc.Layers
+	if oc.Layers != nil {
+		res.Notes = append(res.Notes, fmt.Sprintf("the speed resolved by depth shows %d distinct layers; the corrected model uses them", len(oc.Layers)))
+	}
 	if oc.Aberration != nil {
 		res.ProfileS = oc.ProfileS
 		for _, v := range res.ProfileS {
@@ -167,6 +172,15 @@ func correctText(r *correctOutput, out string) string {
 	fmt.Fprintf(&b, "speed of sound  %.1f m/s (95 %% interval %.1f to %.1f), confidence %s\n", r.SpeedMPS, r.CI95[0], r.CI95[1], r.Confidence)
 	if r.ProfileS != nil {
 		fmt.Fprintf(&b, "profile         %.1f ns rms\n", r.ProfileRMS*1e9)
+	}
+	top := 0.0
+	for i, l := range r.Layers {
+		if i < len(r.Layers)-1 {
+			fmt.Fprintf(&b, "layer           %.1f to %.1f mm at %.1f m/s\n", top*1e3, (top+l.ThicknessM)*1e3, l.SpeedMPS)
+			top += l.ThicknessM
+		} else {
+			fmt.Fprintf(&b, "layer           below %.1f mm at %.1f m/s\n", top*1e3, l.SpeedMPS)
+		}
 	}
 	for i, rd := range r.Rounds {
 		fmt.Fprintf(&b, "round %d         %.1f m/s, profile %.1f ns rms (changed %.1f ns)\n", i+1, rd.SpeedMPS, rd.ProfileRMSS*1e9, rd.ProfileChangeS*1e9)

@@ -59,6 +59,19 @@ func writeReportHTML(dir string, a *acq.Acquisition, src string, ev *correction.
 		{Key: "rounds", Value: fmt.Sprintf("%d (converged: %v)", len(oc.Rounds), oc.Converged)},
 		{Key: "imaging", Value: "delay-and-sum, receive F-number 1.5, Hann window, coherent compounding"},
 	}
+	if oc.Layers != nil {
+		var ls []string
+		top := 0.0
+		for i, l := range oc.Layers {
+			if i < len(oc.Layers)-1 {
+				ls = append(ls, fmt.Sprintf("%.1f-%.1f mm at %.1f m/s", top*1e3, (top+l.ThicknessM)*1e3, l.SpeedMPS))
+				top += l.ThicknessM
+			} else {
+				ls = append(ls, fmt.Sprintf("below %.1f mm at %.1f m/s", top*1e3, l.SpeedMPS))
+			}
+		}
+		r.Settings = append(r.Settings, report.KV{Key: "bulk model", Value: "layers resolved by depth (Dix): " + strings.Join(ls, "; ")})
+	}
 	if oc.Aberration != nil {
 		r.Settings = append(r.Settings, report.KV{Key: "aberration method", Value: fmt.Sprintf("%s, %d patches, mean, trend and curvature removed", oc.Aberration.Method, len(oc.Aberration.Patches))})
 	}
