@@ -21,7 +21,7 @@ type Method int
 const (
 	Neighbour Method = iota + 1 // nearest-neighbour differences, integrated
 	Pairs                       // weighted least squares over many pairs
-	Beamsum                     // each element against the beamformed sum
+	Beamsum                     // each element against the beamformed sum, checked against pairs
 )
 
 func (m Method) String() string {
@@ -34,7 +34,7 @@ func (m Method) String() string {
 	return "pairs"
 }
 
-// ParseMethod parses "neighbour" or "pairs".
+// ParseMethod parses "neighbour" (or "neighbor"), "pairs" or "beamsum".
 func ParseMethod(s string) (Method, error) {
 	switch s {
 	case "neighbour", "neighbor":
@@ -76,12 +76,18 @@ type Config struct {
 	// FNumber is the receive F-number of the aperture data; default 0.6: a
 	// wide aperture gives each element more pixels to be estimated from.
 	FNumber float64
-	// PixelM is the pixel spacing in the patches; default half a wavelength.
+	// PixelM is the pixel spacing in the patches. The default is half a
+	// wavelength, widened where needed so that one pass over the patches
+	// costs at most about 1e7 pixel-element-event products (see
+	// defaultPixel): a sequence of many events (synthetic aperture) focuses
+	// its aperture data well, so fewer pixels serve, and each costs more.
 	PixelM float64
 	// MinCoverage is the fraction of a patch's pixels for which an element
 	// must be active to be estimated from that patch; default 0.2.
 	MinCoverage float64
-	// Events restricts the events used; nil means all.
+	// Events restricts the events used; nil means all. A subset of a
+	// synthetic-aperture sequence samples the transmit aperture sparsely:
+	// its grating lobes lower the coherence the estimate works from.
 	Events  []int
 	Workers int
 	// Progress, if not nil, is called after each iteration.
@@ -109,7 +115,13 @@ type PatchResult struct {
 	// DisagreementS is the rms difference from the combined profile over the
 	// elements the patch sees (both detrended there).
 	DisagreementS float64 `json:"disagreement_s"`
-	Rejected      bool    `json:"rejected"`
+	// CoherentGain is sum_p |sum_j A_pj|^2 / sum_p sum_j |A_pj|^2 over the
+	// patch's aperture data after correction: 1 for incoherent noise, the
+	// number of elements for perfectly coherent echoes.
+	CoherentGain float64 `json:"coherent_gain"`
+	// Rejected patches (fewer than 4 elements seen, or a coherent gain
+	// below 2) are left out of the disagreement.
+	Rejected bool `json:"rejected"`
 }
 
 // Result is an aberration estimate.
@@ -118,8 +130,11 @@ type Result struct {
 	// linear trend removed.
 	ProfileS []float64 `json:"profile_s"`
 	RMSS     float64   `json:"rms_s"`
-	// MeanS and TrendSPerM were removed from the raw estimate: a common
-	// delay and a steering (s per m along the array).
+	// MeanS and TrendSPerM are the least-squares constant and slope (s per
+	// m along the array) removed from the raw estimate. The data do not
+	// determine them (a common delay shifts the image in depth, a slope
+	// steers it), so the estimate's steps carry neither: they are those of
+	// Config.Initial (zero without one).
 	MeanS      float64       `json:"mean_s"`
 	TrendSPerM float64       `json:"trend_s_per_m"`
 	Method     string        `json:"method"`
@@ -148,6 +163,9 @@ func (cfg *Config) defaults(a *acq.Acquisition) error {
 	if cfg.Method == 0 {
 		cfg.Method = Beamsum
 	}
+	if cfg.Method != Neighbour && cfg.Method != Pairs && cfg.Method != Beamsum {
+		return fmt.Errorf("aberration: unknown method %d", int(cfg.Method))
+	}
 	if cfg.MaxLag == 0 {
 		cfg.MaxLag = 8
 	}
@@ -166,8 +184,18 @@ func (cfg *Config) defaults(a *acq.Acquisition) error {
 	if cfg.FNumber == 0 {
 		cfg.FNumber = 0.6
 	}
-	if cfg.PixelM == 0 {
-		cfg.PixelM = cfg.Model.FaceSpeed() / a.Probe.CenterFrequencyHz / 2
+	if cfg.PixelM < 0 || math.IsNaN(cfg.PixelM) || math.IsInf(cfg.PixelM, 0) {
+		return fmt.Errorf("aberration: pixel spacing must be positive and finite, got %g m", cfg.PixelM)
+	}
+	if cfg.Initial != nil {
+		if len(cfg.Initial) != a.NumElements() {
+			return fmt.Errorf("aberration: initial profile has %d values for %d elements", len(cfg.Initial), a.NumElements())
+		}
+		for j, v := range cfg.Initial {
+			if math.IsNaN(v) || math.IsInf(v, 0) || math.Abs(v) > 1e-4 {
+				return fmt.Errorf("aberration: initial profile: element %d: %g s must be finite and within 100 us", j, v)
+			}
+		}
 	}
 	if cfg.MinCoverage == 0 {
 		cfg.MinCoverage = 0.2
@@ -186,8 +214,13 @@ type patchData struct {
 	n      [][]int
 	active []int // per element: pixels where it is active
 	cf     [2]float64
-	// r[j] = sum_p A_pj conj(B_p), B_p the beamformed sum of pixel p, with
-	// energies ra[j] = sum |A_pj|^2 and rb[j] = sum |B_p|^2 over the same pixels.
+	// energy = sum_p sum_j |A_pj|^2: cf[0] / energy is the patch's coherent
+	// gain, 1 for incoherent noise and the number of elements for echoes
+	// that are perfectly coherent across them.
+	energy float64
+	// r[j] = sum_p A_pj conj(B_pj), B_pj the beamformed sum of pixel p
+	// without element j, with energies ra[j] = sum |A_pj|^2 and
+	// rb[j] = sum |B_pj|^2 over the same pixels.
 	r      []complex128
 	ra, rb []float64
 }
@@ -212,20 +245,35 @@ func Estimate(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Result, erro
 	if len(patches) == 0 {
 		return nil, errors.New("aberration: no patches")
 	}
+	for _, p := range patches {
+		finite := !math.IsInf(p.X0, 0) && !math.IsInf(p.X1, 0) && !math.IsInf(p.Z0, 0) && !math.IsInf(p.Z1, 0)
+		if !(finite && p.X1 > p.X0 && p.Z1 > p.Z0 && p.Z0 > 0) {
+			return nil, fmt.Errorf("aberration: patch %s: want finite x1 > x0 and z1 > z0 > 0", p)
+		}
+	}
+	if cfg.PixelM == 0 {
+		nev := a.NumEvents()
+		if cfg.Events != nil {
+			nev = len(cfg.Events)
+		}
+		cfg.PixelM = defaultPixel(patches, cfg.Model.FaceSpeed()/a.Probe.CenterFrequencyHz, nn, nev)
+	}
 	pds := make([]*patchData, len(patches))
 	for i, p := range patches {
-		if !(p.X1 > p.X0 && p.Z1 > p.Z0 && p.Z0 > 0) {
-			return nil, fmt.Errorf("aberration: patch %s: want x1 > x0 and z1 > z0 > 0", p)
+		// count before allocating: a fine spacing over a large patch is
+		// rejected, not built
+		nx := int(math.Floor((p.X1-p.X0)/cfg.PixelM+1e-9)) + 1
+		nz := int(math.Floor((p.Z1-p.Z0)/cfg.PixelM+1e-9)) + 1
+		if float64(nx)*float64(nz) > maxPatchPixels {
+			return nil, fmt.Errorf("aberration: patch %s holds %.0f pixels at %.3g mm spacing (at most %d); use a smaller patch or a wider spacing",
+				p, float64(nx)*float64(nz), cfg.PixelM*1e3, maxPatchPixels)
 		}
 		pd := &patchData{patch: p}
-		for z := p.Z0; z <= p.Z1+1e-12; z += cfg.PixelM {
-			for x := p.X0; x <= p.X1+1e-12; x += cfg.PixelM {
-				pd.xs = append(pd.xs, x)
-				pd.zs = append(pd.zs, z)
+		for iz := range nz {
+			for ix := range nx {
+				pd.xs = append(pd.xs, p.X0+float64(ix)*cfg.PixelM)
+				pd.zs = append(pd.zs, p.Z0+float64(iz)*cfg.PixelM)
 			}
-		}
-		if len(pd.xs) > 40000 {
-			return nil, fmt.Errorf("aberration: patch %s holds %d pixels; use a smaller patch", p, len(pd.xs))
 		}
 		pds[i] = pd
 	}
@@ -236,12 +284,8 @@ func Estimate(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Result, erro
 		lags = 1
 	}
 	prof := make([]float64, nn)
-	if cfg.Initial != nil {
-		if len(cfg.Initial) != nn {
-			return nil, fmt.Errorf("aberration: initial profile has %d values for %d elements", len(cfg.Initial), nn)
-		}
-		copy(prof, cfg.Initial)
-	}
+	copy(prof, cfg.Initial) // checked by defaults
+	x := elementCoords(a)
 	gather := func(profile []float64) error {
 		m, err := recon.NewCorrected(cfg.Model, profile)
 		if err != nil {
@@ -273,28 +317,73 @@ func Estimate(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Result, erro
 		} else {
 			step, _ = solve(pds, nil, nn, use, omega, cfg.MinCoverage)
 		}
-		// Take the step, halving it while it lowers the coherence factor of
-		// the patches: a step that defocuses is noise, not correction.
+		// Candidate steps: the method's own and, for the beamsum method, the
+		// many-pairs step of the same round (lag one in the first). Each is
+		// tried at full length and the one that raises the coherence factor
+		// of the patches most is taken; if none raises it, the method's own
+		// step is halved while it lowers it: a step that defocuses is noise,
+		// not correction. The two estimates fail in different ways: the
+		// beamsum reference is formed with the current profile, so a smooth
+		// error that merely moves the focus (the aperture data of a pixel
+		// then come from a neighbouring point and look coherent) is nearly
+		// invisible to it, and a first step from errors beyond half a period
+		// wraps; the pairs compare elements directly, but their differences
+		// are noisy where neighbouring elements correlate weakly.
+		steps := [][]float64{step}
+		if cfg.Method == Beamsum {
+			pst, _ := solve(pds, nil, nn, use, omega, cfg.MinCoverage)
+			steps = append(steps, pst)
+		}
+		// The data do not determine a step's mean and linear trend (a delay
+		// common to all elements shifts the image in depth, a slope steers
+		// it; the aperture data of the shifted image look the same), so
+		// each step is made free of them: otherwise they wander from round
+		// to round with the noise. The raw profile keeps those of Initial.
+		for _, st := range steps {
+			free, _, _ := detrend(st, x, nil)
+			copy(st, free)
+		}
 		old := append([]float64(nil), prof...)
-		frac := 1.0
-		accepted := false
-		for try := 0; try < 4; try++ {
+		// the patches' statistics at the old profile, restored if no step
+		// is accepted (gather replaces, never modifies, their slices)
+		saved := snapshot(pds)
+		take := func(st []float64, frac float64) (float64, error) {
 			for j := range prof {
 				prof[j] = old[j]
-				if !math.IsNaN(step[j]) {
-					prof[j] += frac * step[j]
+				if !math.IsNaN(st[j]) {
+					prof[j] += frac * st[j]
 				}
 			}
 			if err := gather(prof); err != nil {
+				return 0, err
+			}
+			return quality(pds, omega, nn).CoherenceFactor, nil
+		}
+		accepted := false
+		var bestProf []float64
+		var bestPds []patchData
+		for _, st := range steps {
+			cf, err := take(st, 1)
+			if err != nil {
 				return nil, err
 			}
-			cf := quality(pds, omega, nn).CoherenceFactor
 			if cf >= bestCF {
-				bestCF = cf
-				accepted = true
-				break
+				bestCF, accepted = cf, true
+				bestProf, bestPds = append([]float64(nil), prof...), snapshot(pds)
 			}
-			frac /= 2
+		}
+		if accepted {
+			copy(prof, bestProf)
+			restore(pds, bestPds)
+		}
+		for frac := 0.5; !accepted && frac > 0.1; frac /= 2 {
+			cf, err := take(steps[0], frac)
+			if err != nil {
+				return nil, err
+			}
+			if cf >= bestCF {
+				bestCF, accepted = cf, true
+			}
 		}
 		res.Iterations = it + 1
 		if cfg.Progress != nil {
@@ -302,11 +391,9 @@ func Estimate(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Result, erro
 		}
 		if !accepted {
 			copy(prof, old)
-			if err := gather(prof); err != nil {
-				return nil, err
-			}
+			restore(pds, saved)
 			if it == 0 {
-				res.Notes = append(res.Notes, "no correction raised the coherence of the patches: the profile stays at zero")
+				res.Notes = append(res.Notes, "no correction raised the coherence of the patches: the profile stays where it started")
 			}
 			break
 		}
@@ -344,7 +431,6 @@ func Estimate(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Result, erro
 	}
 	res.After = quality(pds, omega, nn)
 	res.RawS = append([]float64(nil), prof...)
-	x := elementCoords(a)
 	res.ProfileS, res.MeanS, res.TrendSPerM = detrend(prof, x, nil)
 	res.RMSS = rms(res.ProfileS)
 	// disagreement of the patches
@@ -355,8 +441,18 @@ func Estimate(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Result, erro
 		for j, v := range pr.ProfileS {
 			mask[j] = !math.IsNaN(v)
 		}
+		pr.CoherentGain = gain(pds[i])
 		if pr.Elements < 4 {
 			pr.Rejected = true
+			continue
+		}
+		// A patch whose echoes are hardly more coherent than noise gives a
+		// profile of noise: its disagreement says nothing about how the
+		// errors vary across the field. (Its weight in the joint estimate is
+		// already small: rho^2 / (1 - rho^2).)
+		if g := pr.CoherentGain; g < minGain {
+			pr.Rejected = true
+			res.Notes = append(res.Notes, fmt.Sprintf("patch %s: its echoes are hardly more coherent than noise (coherent gain %.2f, 1 for noise): left out of the disagreement", pr.Patch, g))
 			continue
 		}
 		a1, _, _ := detrend(pr.ProfileS, x, mask)
@@ -388,10 +484,75 @@ func Estimate(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Result, erro
 	if !res.Isoplanatic {
 		res.Notes = append(res.Notes, fmt.Sprintf("the patches disagree (%.0f %% of the profile rms): the errors are not the same across the field (not isoplanatic); one profile corrects them only in part", 100*res.Disagreement))
 	}
-	if res.After.LagOneCoherence < 0.3 {
-		res.Notes = append(res.Notes, "lag-one coherence stays below 0.3: the echoes are weak or noisy, and the profile is uncertain")
+	// The lag-one coherence is no test of noise here: sparse plane-wave
+	// compounding leaves grating-lobe echoes that lower it to about 0.1 in
+	// clean speckle. The coherent gain of the patches is.
+	var cs, ce float64
+	for _, pd := range pds {
+		cs += pd.cf[0]
+		ce += pd.energy
+	}
+	if ce > 0 && cs/ce < minGain {
+		res.Notes = append(res.Notes, fmt.Sprintf("the echoes are hardly more coherent than noise (coherent gain %.2f, 1 for noise): the profile is uncertain", cs/ce))
 	}
 	return res, nil
+}
+
+// minGain is the coherent gain below which a patch counts as noise: twice
+// (3 dB above) the gain of incoherent signals, whose mean is 1 and whose
+// average over a patch's hundreds of pixels scatters by a few per cent;
+// speckle gives about 6 or more even behind sparse plane-wave compounding.
+const minGain = 2.0
+
+// gain returns a patch's coherent gain: sum_p |sum_j A_pj|^2 / sum_p sum_j |A_pj|^2.
+func gain(pd *patchData) float64 {
+	if pd.energy == 0 {
+		return 0
+	}
+	return pd.cf[0] / pd.energy
+}
+
+// snapshot copies the patches' statistics (shallow: gather replaces their
+// slices, never writes into them).
+func snapshot(pds []*patchData) []patchData {
+	out := make([]patchData, len(pds))
+	for i, pd := range pds {
+		out[i] = *pd
+	}
+	return out
+}
+
+// restore puts back a snapshot.
+func restore(pds []*patchData, s []patchData) {
+	for i := range pds {
+		*pds[i] = s[i]
+	}
+}
+
+// maxPatchPixels bounds one patch's pixels (its aperture data hold one
+// complex value per pixel and element).
+const maxPatchPixels = 40000
+
+// gatherWork is the default budget of one pass over the patches, in
+// pixel-element-event products: about 0.1 to 0.2 s of delay-and-sum on two
+// cores, so that an estimate (up to two passes per round) takes a few
+// seconds.
+const gatherWork = 1e7
+
+// defaultPixel returns the default pixel spacing (m): half a wavelength,
+// widened to sqrt(area / n) when the n = gatherWork / (elements * events)
+// pixels the budget allows do not fill the patches' area at that spacing.
+// The estimate's precision is set by the number of independent speckle
+// samples, one per resolution cell (about a wavelength by the pulse length);
+// a sequence of many events, which costs the most per pixel, also focuses
+// its aperture data best (higher coherence), so it needs the fewest.
+func defaultPixel(patches []Patch, lambda float64, nn, nev int) float64 {
+	area := 0.0
+	for _, p := range patches {
+		area += (p.X1 - p.X0) * (p.Z1 - p.Z0)
+	}
+	n := gatherWork / float64(max(1, nn*nev))
+	return math.Max(lambda/2, math.Sqrt(area/n))
 }
 
 // gather beamforms the patch with model m and accumulates the lagged
@@ -425,9 +586,17 @@ func (pd *patchData) gather(a *acq.Acquisition, ch *recon.Channels, m recon.Dela
 	}
 	pd.active = make([]int, nn)
 	pd.cf = [2]float64{}
+	pd.energy = 0
 	pd.r = make([]complex128, nn)
 	pd.ra = make([]float64, nn)
 	pd.rb = make([]float64, nn)
+	// per pixel: the active elements' values and energies, then the lagged
+	// products and the correlation of each element with the sum of the
+	// others (itself left out, whose own energy would pull every phase
+	// towards zero, the more so the less the elements correlate)
+	vr := make([]float64, nn)
+	vi := make([]float64, nn)
+	en := make([]float64, nn)
 	for p := range pd.xs {
 		row := ap[p*nn : (p+1)*nn]
 		mk := mask[p*nn : (p+1)*nn]
@@ -438,35 +607,40 @@ func (pd *patchData) gather(a *acq.Acquisition, ch *recon.Channels, m recon.Dela
 				continue
 			}
 			pd.active[j]++
-			v := row[j]
-			sr += float64(real(v))
-			si += float64(imag(v))
-			e += float64(real(v))*float64(real(v)) + float64(imag(v))*float64(imag(v))
+			vr[j], vi[j] = float64(real(row[j])), float64(imag(row[j]))
+			en[j] = vr[j]*vr[j] + vi[j]*vi[j]
+			sr += vr[j]
+			si += vi[j]
+			e += en[j]
 			cnt++
-			for m := 1; m <= L && j+m < nn; m++ {
-				if !mk[j+m] {
+		}
+		if cnt == 0 {
+			continue
+		}
+		for m := 1; m <= L; m++ {
+			c, ea, eb, n := pd.c[m], pd.ea[m], pd.eb[m], pd.n[m]
+			for j := 0; j+m < nn; j++ {
+				if !mk[j] || !mk[j+m] {
 					continue
 				}
-				w := row[j+m]
-				pd.c[m][j] += complex128(v) * complex(float64(real(w)), -float64(imag(w)))
-				pd.ea[m][j] += float64(real(v))*float64(real(v)) + float64(imag(v))*float64(imag(v))
-				pd.eb[m][j] += float64(real(w))*float64(real(w)) + float64(imag(w))*float64(imag(w))
-				pd.n[m][j]++
+				k := j + m
+				c[j] += complex(vr[j]*vr[k]+vi[j]*vi[k], vi[j]*vr[k]-vr[j]*vi[k])
+				ea[j] += en[j]
+				eb[j] += en[k]
+				n[j]++
 			}
 		}
-		if cnt > 0 {
-			pd.cf[0] += sr*sr + si*si
-			pd.cf[1] += float64(cnt) * e
-			bb := sr*sr + si*si
-			for j := range nn {
-				if !mk[j] {
-					continue
-				}
-				v := complex128(row[j])
-				pd.r[j] += v * complex(sr, -si)
-				pd.ra[j] += real(v)*real(v) + imag(v)*imag(v)
-				pd.rb[j] += bb
+		pd.cf[0] += sr*sr + si*si
+		pd.cf[1] += float64(cnt) * e
+		pd.energy += e
+		for j := range nn {
+			if !mk[j] {
+				continue
 			}
+			or, oi := sr-vr[j], si-vi[j]
+			pd.r[j] += complex(vr[j]*or+vi[j]*oi, vi[j]*or-vr[j]*oi)
+			pd.ra[j] += en[j]
+			pd.rb[j] += or*or + oi*oi
 		}
 	}
 	return nil

@@ -20,7 +20,26 @@
 // many-pairs estimate (Liu & Waag 1994) solves the weighted least-squares
 // system of all differences up to a maximum lag, each weighted by its
 // correlation coefficient, which does not accumulate neighbour errors as a
-// random walk. Both iterate: correct, re-form, re-estimate the residual.
+// random walk. The beamsum estimate (the default) takes each element's phase
+// against the beamformed sum of the other elements at the same pixels. All
+// iterate: correct, re-form, re-estimate the residual, keeping a step only
+// if it raises the coherence factor of the patches (halving it otherwise).
+// The beamsum reference is formed with the current profile, so a smooth
+// error that merely moves the focus looks coherent to it, and its first step
+// wraps where errors exceed half a period; the pairs compare elements
+// directly but are noisy where neighbours correlate weakly (sparse
+// plane-wave compounding leaves grating-lobe echoes that lower the lag-one
+// coherence to about 0.1 even in clean speckle). So each beamsum round also
+// tries the pairs step (lag one in the first round) and keeps whichever
+// focuses the patches better.
+//
+// The mean and the linear trend of a step are removed before it is taken:
+// the data do not determine them, and they would otherwise wander with the
+// noise. The pixels of the patches are half a wavelength apart, or further
+// apart where a long sequence would make one pass over them cost more than
+// about 1e7 pixel-element-event products. A patch whose coherent gain (the
+// power of the sum over the summed power) is below 2, twice that of noise,
+// is rejected and left out of the disagreement between patches.
 //
 // References:
 //   - Flax SW, O'Donnell M. Phase-aberration correction using signals from
