@@ -125,6 +125,9 @@ func ByDepth(a *acq.Acquisition, ch *recon.Channels, cfg DepthConfig) (*DepthRes
 		r.Z0 = math.Max(math.Max(5e-3, 2*sc.FNumber*16*p.MeanPitch()), sc.RefSpeedMPS*a.StartTimeS/2+10*sc.RefSpeedMPS/p.CenterFrequencyHz)
 		region = r
 		res.Notes = append(res.Notes, notes...)
+		if near := 0.4 * p.Aperture(); r.Z0 < near && planeWaves(a, sc.Events) {
+			res.Notes = append(res.Notes, fmt.Sprintf("the shallowest windows start at %.1f mm, above 0.4 times the array length (%.1f mm), where focus criteria on compounded plane waves read high, the more so the narrower the span of angles (docs/validation.md)", r.Z0*1e3, near*1e3))
+		}
 	}
 	res.Region = region
 	nw := max(1, int(math.Round((region.Z1-region.Z0)/cfg.WindowM)))
@@ -295,4 +298,25 @@ func mergeLayers(iv []Layer, times []float64, boot [][]float64, sysFrac float64)
 	}
 	flush(len(iv))
 	return out
+}
+
+// planeWaves reports whether every event used is a plane wave.
+func planeWaves(a *acq.Acquisition, events []int) bool {
+	if events == nil {
+		events = make([]int, a.NumEvents())
+		for i := range events {
+			events[i] = i
+		}
+	}
+	els := a.Probe.Elements()
+	for _, e := range events {
+		if e < 0 || e >= a.NumEvents() {
+			return false
+		}
+		w := acq.DeriveWavefront(els, &a.Events[e], a.AssumedSpeedMPS, 0, a.Probe.CenterFrequencyHz)
+		if w.Kind != acq.KindPlaneWave {
+			return false
+		}
+	}
+	return len(events) > 0
 }

@@ -55,7 +55,7 @@ func writeReportHTML(dir string, a *acq.Acquisition, src string, ev *correction.
 	}
 	r.Settings = []report.KV{
 		{Key: "speed method", Value: fmt.Sprintf("focus sweep, %s criterion, region %s", oc.Speed.Criterion, oc.Speed.Region)},
-		{Key: "uncertainty", Value: "block bootstrap over tiles of the region, with a 0.1 % systematic component"},
+		{Key: "uncertainty", Value: "block bootstrap over tiles of the region, with a 0.15 % systematic component"},
 		{Key: "rounds", Value: fmt.Sprintf("%d (converged: %v)", len(oc.Rounds), oc.Converged)},
 		{Key: "imaging", Value: "delay-and-sum, receive F-number 1.5, Hann window, coherent compounding"},
 	}

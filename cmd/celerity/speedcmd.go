@@ -41,7 +41,7 @@ func (c *SpeedCmd) Help() string {
 the reason). The sweep forms aperture-domain data over a region that follows the echoes for each
 assumed speed, deriving each event's transmit wavefront from its firing delays, and maximises
 the focus criterion (coarse grid, fine grid, quadratic peak); the interval comes from a block
-bootstrap over tiles of the region, combined with a systematic component of 0.1 %. The targets
+bootstrap over tiles of the region, combined with a systematic component of 0.15 %. The targets
 method fits the arrival-time curves of wires or other bright point targets.
 
 A single unfocused plane wave gives diffuse echoes that are nearly incoherent across the
