@@ -10,6 +10,7 @@ import (
 	"time"
 
 	"celerity/acq"
+	"celerity/correction"
 	"celerity/internal/atomicfile"
 	"celerity/internal/jsonx"
 	"celerity/recon"
@@ -19,20 +20,21 @@ import (
 
 // SpeedCmd estimates the speed of sound of an acquisition.
 type SpeedCmd struct {
-	Dir          string  `arg:"" help:"Acquisition folder." type:"existingdir" placeholder:"DIR"`
-	Method       string  `help:"sweep: maximise a focus criterion over assumed speeds; targets: fit the arrival-time curves of bright point targets." default:"sweep" enum:"sweep,targets"`
-	Criterion    string  `help:"Focus criterion of the sweep: coherence-factor, lag-one-coherence, short-lag-coherence, brightness or normalized-variance." default:"coherence-factor"`
-	RangeMPS     string  `help:"Speeds to search, min:max in m/s." default:"1400:1650" name:"range-mps"`
-	ROI          string  `help:"Region of interest in mm at the scanner's assumed speed, x0:x1,z0:z1 (default: chosen automatically, excluding the near field and noise-dominated depths)." name:"roi" placeholder:"SPEC"`
-	ByDepth      bool    `help:"Also resolve the speed by depth: average speeds in depth windows, inverted to layer speeds (Dix)." name:"by-depth"`
-	WindowMM     float64 `help:"Depth window for --by-depth, mm." default:"5" name:"window-mm"`
-	NominalMPS   float64 `help:"Specified speed of the material, m/s, for a pass/fail verdict." name:"nominal-mps"`
-	ToleranceMPS float64 `help:"Tolerance around --nominal-mps, m/s." name:"tolerance-mps"`
-	Profile      string  `help:"Per-element arrival-time corrections (s) applied during the sweep (.npy or CSV)." type:"existingfile" placeholder:"FILE"`
-	Seed         uint64  `help:"Seed of the bootstrap." default:"1"`
-	Out          string  `help:"Output folder to create: criterion curve (CSV) and plot (PNG)." placeholder:"OUT"`
-	Force        bool    `help:"Replace an existing output folder."`
-	JSON         bool    `name:"json" help:"Print the result as one JSON object on stdout."`
+	Dir               string  `arg:"" help:"Acquisition folder." type:"existingdir" placeholder:"DIR"`
+	Method            string  `help:"auto: the point-target fit when the data hold bright isolated targets that fit well, else the sweep; sweep: maximise a focus criterion over assumed speeds; targets: fit the arrival-time curves of bright point targets." default:"auto" enum:"auto,sweep,targets"`
+	Criterion         string  `help:"Focus criterion of the sweep: coherence-factor, lag-one-coherence, short-lag-coherence, brightness or normalized-variance." default:"coherence-factor"`
+	RangeMPS          string  `help:"Speeds to search, min:max in m/s." default:"1400:1650" name:"range-mps"`
+	ROI               string  `help:"Region of interest in mm at the scanner's assumed speed, x0:x1,z0:z1 (default: chosen automatically, excluding the near field and noise-dominated depths)." name:"roi" placeholder:"SPEC"`
+	ByDepth           bool    `help:"Also resolve the speed by depth: average speeds in depth windows, inverted to layer speeds (Dix)." name:"by-depth"`
+	WindowMM          float64 `help:"Depth window for --by-depth, mm." default:"5" name:"window-mm"`
+	NominalMPS        float64 `help:"Specified speed of the material, m/s, for a pass/fail verdict." name:"nominal-mps"`
+	ToleranceMPS      float64 `help:"Tolerance around --nominal-mps, m/s." name:"tolerance-mps"`
+	Profile           string  `help:"Per-element arrival-time corrections (s) applied during the sweep (.npy or CSV)." type:"existingfile" placeholder:"FILE"`
+	NoAberrationCheck bool    `help:"Skip the check for a near-field aberrator (and the re-estimate with its profile when one is found)." name:"no-aberration-check"`
+	Seed              uint64  `help:"Seed of the bootstrap." default:"1"`
+	Out               string  `help:"Output folder to create: criterion curve (CSV) and plot (PNG)." placeholder:"OUT"`
+	Force             bool    `help:"Replace an existing output folder."`
+	JSON              bool    `name:"json" help:"Print the result as one JSON object on stdout."`
 }
 
 // Help is the long help.
@@ -43,6 +45,11 @@ assumed speed, deriving each event's transmit wavefront from its firing delays, 
 the focus criterion (coarse grid, fine grid, quadratic peak); the interval comes from a block
 bootstrap over tiles of the region, combined with a systematic component of 0.15 %. The targets
 method fits the arrival-time curves of wires or other bright point targets.
+
+Unless --no-aberration-check, a quick arrival-time profile is estimated at the speed found; when
+it shows a near-field aberrator (more than 5 ns rms once its mean, trend and curvature are
+removed), the speed is re-estimated by alternating it with the profile, as correct does, and a
+note says so: a screen pulls a focus-based estimate in a way the bootstrap cannot see.
 
 A single unfocused plane wave gives diffuse echoes that are nearly incoherent across the
 receive aperture, so the sweep reports low confidence there unless the data hold bright targets;
@@ -63,24 +70,25 @@ func (c *SpeedCmd) Validate() error {
 	if !(c.WindowMM > 0 && c.WindowMM < 1000) {
 		return fmt.Errorf("--window-mm must be positive")
 	}
-	if c.ByDepth && c.Method != "sweep" {
-		return fmt.Errorf("--by-depth needs --method sweep")
+	if c.ByDepth && c.Method == "targets" {
+		return fmt.Errorf("--by-depth needs the sweep (--method sweep or auto)")
 	}
 	return nil
 }
 
 type speedOutput struct {
 	*speed.Result
-	Layers    []speed.Layer     `json:"layers,omitempty"`
-	Intervals []speed.Layer     `json:"intervals,omitempty"`
-	Windows   []speed.Window    `json:"windows,omitempty"`
-	DepthConf string            `json:"depth_confidence,omitempty"`
-	Verdict   string            `json:"verdict,omitempty"`
-	Nominal   float64           `json:"nominal_mps,omitempty"`
-	Tolerance float64           `json:"tolerance_mps,omitempty"`
-	Targets   []speed.TargetFit `json:"targets,omitempty"`
-	Seconds   float64           `json:"seconds"`
-	Caution   string            `json:"caution"`
+	Layers    []speed.Layer          `json:"layers,omitempty"`
+	Intervals []speed.Layer          `json:"intervals,omitempty"`
+	Windows   []speed.Window         `json:"windows,omitempty"`
+	DepthConf string                 `json:"depth_confidence,omitempty"`
+	Verdict   string                 `json:"verdict,omitempty"`
+	Nominal   float64                `json:"nominal_mps,omitempty"`
+	Tolerance float64                `json:"tolerance_mps,omitempty"`
+	Targets   []speed.TargetFit      `json:"targets,omitempty"`
+	Check     *correction.SpeedCheck `json:"aberration_check,omitempty"`
+	Seconds   float64                `json:"seconds"`
+	Caution   string                 `json:"caution"`
 }
 
 // Verdict compares an interval with nominal +/- tolerance.
@@ -184,7 +192,20 @@ func (c *SpeedCmd) Run(g *Globals) error {
 		return err
 	}
 	out := speedOutput{Caution: Caution}
-	switch c.Method {
+	method := c.Method
+	var autoNote string
+	if method == "auto" {
+		method = "sweep"
+		if c.ByDepth {
+			autoNote = "method auto: the sweep, as --by-depth needs it"
+		} else if tr, err := speed.Targets(a, ch, speed.TargetConfig{MinMPS: cfg.MinMPS, MaxMPS: cfg.MaxMPS, Region: cfg.Region}); err == nil && tr.Confidence == speed.High {
+			method = "targets"
+			autoNote = fmt.Sprintf("method auto: %d bright point target(s) fit well, so their arrival-time fit is reported (far more precise than a focus sweep on wires)", len(tr.Targets))
+		} else {
+			autoNote = "method auto: no bright point target fits well, so the focus sweep is reported"
+		}
+	}
+	switch method {
 	case "targets":
 		tcfg := speed.TargetConfig{MinMPS: cfg.MinMPS, MaxMPS: cfg.MaxMPS, Region: cfg.Region}
 		tr, err := speed.Targets(a, ch, tcfg)
@@ -197,12 +218,24 @@ func (c *SpeedCmd) Run(g *Globals) error {
 	default:
 		bar := g.newProgress(40, "sweeping")
 		cfg.Progress = bar.set
-		res, err := speed.Sweep(a, ch, cfg)
+		var res *speed.Result
+		if c.NoAberrationCheck || c.Profile != "" {
+			res, err = speed.Sweep(a, ch, cfg)
+		} else {
+			res, out.Check, err = correction.EstimateSpeed(a, ch, cfg)
+		}
 		bar.finish()
 		if err != nil {
 			return err
 		}
 		out.Result = res
+		if out.Check != nil && out.Check.Alternated && c.ByDepth {
+			prof := out.Check.Profile
+			els := a.Probe.Elements()
+			cfg.Model = func(v float64) (recon.DelayModel, error) {
+				return recon.NewCorrected(recon.NewHomogeneous(v, els), prof)
+			}
+		}
 		if c.ByDepth {
 			bar := g.newProgress(40, "by depth")
 			cfg.Progress = bar.set
@@ -216,6 +249,9 @@ func (c *SpeedCmd) Run(g *Globals) error {
 				out.Notes = append(out.Notes, "by depth: "+n)
 			}
 		}
+	}
+	if autoNote != "" {
+		out.Notes = append([]string{autoNote}, out.Notes...)
 	}
 	if c.NominalMPS != 0 {
 		out.Verdict = Verdict(out.CI95MPS, c.NominalMPS, c.ToleranceMPS)
