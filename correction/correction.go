@@ -166,8 +166,10 @@ func Run(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Outcome, error) {
 			}
 		}
 		sc.Progress = stage(fmt.Sprintf("round %d: speed", r+1))
-		if r > 0 {
-			// later rounds refine around the previous estimate
+		if r > 0 && out.Speed != nil && out.Speed.Confidence == speed.High {
+			// later rounds refine around a confident previous estimate; after a
+			// low-confidence one (a screen can push the first sweep to the
+			// edge of the range) they search the whole range again
 			sc.MinMPS = math.Max(sc.MinMPS, prevSpeed-30)
 			sc.MaxMPS = prevSpeed + 30
 			if cfg.Sweep.MaxMPS != 0 {
@@ -178,6 +180,7 @@ func Run(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Outcome, error) {
 			}
 			sc.CoarseStepMPS = 5
 		}
+
 		sr, err := speed.Sweep(a, ch, sc)
 		if err != nil {
 			return nil, fmt.Errorf("round %d: speed: %w", r+1, err)
@@ -190,7 +193,15 @@ func Run(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Outcome, error) {
 			break
 		}
 		ac := cfg.Aberration
-		ac.Model = recon.NewHomogeneous(sr.SpeedMPS, els)
+		at := sr.SpeedMPS
+		if r == 0 && sr.Confidence != speed.High {
+			// A first sweep without confidence (a strong screen can push it
+			// to the edge of the range) is a poor speed to estimate a profile
+			// at: a large speed error leaks into the profile beyond the
+			// curvature that is removed. Start from the scanner's speed.
+			at = a.AssumedSpeedMPS
+		}
+		ac.Model = recon.NewHomogeneous(at, els)
 		if r > 0 {
 			// refine from the previous profile
 			ac.Initial = append([]float64(nil), prof...)
