@@ -7,6 +7,8 @@ import (
 	"os"
 	"path/filepath"
 
+	"gopkg.in/yaml.v3"
+
 	"celerity/acq"
 	"celerity/internal/strictyaml"
 	"celerity/speed/refspeed"
@@ -88,6 +90,21 @@ func ParseScenario(name string, data []byte) (*Scenario, error) {
 	if err != nil {
 		return nil, err
 	}
+	return parseScenario(root)
+}
+
+// ParseScenarioNode parses a scenario held in a YAML mapping node that is part
+// of a larger document (a benchmark suite's base scenario with its
+// variations): errors name file, prefix.field and the node's own lines.
+func ParseScenarioNode(file, prefix string, n *yaml.Node) (*Scenario, error) {
+	root, err := strictyaml.FromNode(file, prefix, n)
+	if err != nil {
+		return nil, err
+	}
+	return parseScenario(root)
+}
+
+func parseScenario(root *strictyaml.Map) (*Scenario, error) {
 	s := &Scenario{}
 	format, err := root.String("format")
 	if err != nil {

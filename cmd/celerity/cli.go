@@ -35,6 +35,7 @@ type CLI struct {
 	Aberration AberrationCmd `cmd:"" help:"Estimate the per-element arrival-time error profile (phase aberration) across the array."`
 	Correct    CorrectCmd    `cmd:"" help:"Estimate speed and profile, re-form the image and report before/after metrics (report.html)."`
 	Compare    CompareCmd    `cmd:"" help:"Measure two images or acquisitions side by side with the same regions and targets."`
+	Bench      BenchCmd      `cmd:"" help:"Score speed and aberration estimators (built-in and external) against ground truth on a suite of simulated cases."`
 	Demo       DemoCmd       `cmd:"" help:"Run the main job end to end on built-in simulated data."`
 }
 

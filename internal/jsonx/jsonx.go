@@ -3,6 +3,7 @@
 package jsonx
 
 import (
+	"fmt"
 	"math"
 	"strconv"
 )
@@ -39,4 +40,19 @@ func (fs Floats) MarshalJSON() ([]byte, error) {
 		}
 	}
 	return append(b, ']'), nil
+}
+
+// UnmarshalJSON implements json.Unmarshaler: null reads as NaN, so that a
+// value written by MarshalJSON reads back as it was.
+func (f *Float) UnmarshalJSON(b []byte) error {
+	if string(b) == "null" {
+		*f = Float(math.NaN())
+		return nil
+	}
+	v, err := strconv.ParseFloat(string(b), 64)
+	if err != nil {
+		return fmt.Errorf("jsonx: %q is not a number", b)
+	}
+	*f = Float(v)
+	return nil
 }

@@ -19,3 +19,23 @@ func TestNullForNonFinite(t *testing.T) {
 		t.Errorf("got %s, want %s", got, want)
 	}
 }
+
+func TestFloatRoundTrip(t *testing.T) {
+	t.Parallel()
+	type rec struct{ A, B, C Float }
+	in := rec{Float(math.NaN()), Float(1540.123456789012), Float(-3e-9)}
+	b, err := json.Marshal(in)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var out rec
+	if err := json.Unmarshal(b, &out); err != nil {
+		t.Fatal(err)
+	}
+	if !math.IsNaN(float64(out.A)) || out.B != in.B || out.C != in.C {
+		t.Errorf("round trip of %s gave %+v", b, out)
+	}
+	if err := json.Unmarshal([]byte(`{"A":"x"}`), &out); err == nil {
+		t.Error("a string read as a number")
+	}
+}

@@ -85,6 +85,16 @@ func Parse(file string, data []byte) (*Map, error) {
 	return newMap(file, "", root)
 }
 
+// FromNode reads a mapping node of an already parsed document (for example
+// one part of a larger file) as a Map whose fields are reported under path
+// (e.g. "base" gives "base.probe.count"). Lines are the node's own.
+func FromNode(file, path string, n *yaml.Node) (*Map, error) {
+	if n == nil {
+		return nil, &Error{File: file, Field: path, Msg: "expected a mapping of keys to values"}
+	}
+	return newMap(file, path, n)
+}
+
 func newMap(file, path string, n *yaml.Node) (*Map, error) {
 	n = deref(n)
 	if n.Kind != yaml.MappingNode {
@@ -468,3 +478,22 @@ func (m *Map) Strings(key string, required bool) ([]string, error) {
 
 // Keys returns the keys of the mapping in document order.
 func (m *Map) Keys() []string { return append([]string(nil), m.ord...) }
+
+// Node returns the raw node of key, marking it read; nil when the key is
+// absent or null. Aliases are resolved. Use it for parts of a document that
+// another reader handles (see FromNode).
+func (m *Map) Node(key string) *yaml.Node {
+	n, ok := m.take(key)
+	if !ok {
+		return nil
+	}
+	return n
+}
+
+// KeyLine returns the line of key itself (0 when absent).
+func (m *Map) KeyLine(key string) int {
+	if k, ok := m.knod[key]; ok {
+		return k.Line
+	}
+	return 0
+}

@@ -322,3 +322,38 @@ func TestParserCrashers(t *testing.T) {
 		}()
 	}
 }
+
+func TestFromNodeAndRawNodes(t *testing.T) {
+	t.Parallel()
+	root, err := Parse("s.yaml", []byte("name: x\nbase:\n  a: 1\n  b: {c: 2}\n"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if root.KeyLine("base") != 2 || root.KeyLine("nope") != 0 {
+		t.Errorf("KeyLine: %d, %d", root.KeyLine("base"), root.KeyLine("nope"))
+	}
+	n := root.Node("base")
+	if n == nil || root.Node("missing") != nil {
+		t.Fatal("Node")
+	}
+	if _, err := root.String("name"); err != nil {
+		t.Fatal(err)
+	}
+	if err := root.Done(); err != nil {
+		t.Errorf("Node did not mark base read: %v", err)
+	}
+	m, err := FromNode("s.yaml", "base", n)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := m.Float("a"); err != nil {
+		t.Fatal(err)
+	}
+	// errors carry the prefix and the node's own lines
+	if err := m.Done(); err == nil || err.Error() != "s.yaml: base.b: unknown key (line 4)" {
+		t.Errorf("Done: %v", err)
+	}
+	if _, err := FromNode("s.yaml", "base", nil); err == nil {
+		t.Error("nil node accepted")
+	}
+}
