@@ -12,6 +12,7 @@ import (
 	"celerity/internal/dsp"
 	"celerity/internal/jsonx"
 	"celerity/recon"
+	"celerity/speed"
 )
 
 // Method selects the estimator.
@@ -923,7 +924,7 @@ func AutoPatches(a *acq.Acquisition, ch *recon.Channels, c, fnum float64) ([]Pat
 	zNear = math.Max(zNear, c*a.StartTimeS/2+10*c/p.CenterFrequencyHz)
 	zFar := 0.9 * c * (a.StartTimeS + a.Duration()) / 2
 	var notes []string
-	if z := noiseDepth(ch, c); z < zFar {
+	if z := speed.NoiseDepth(ch, c); z < zFar {
 		zFar = z
 		notes = append(notes, fmt.Sprintf("depths beyond %.1f mm excluded: echoes within 10 dB of the noise floor", z*1e3))
 	}
@@ -943,39 +944,6 @@ func AutoPatches(a *acq.Acquisition, ch *recon.Channels, c, fnum float64) ([]Pat
 		out = append(out, Patch{X0: x0, X1: x0 + 2*half/3, Z0: zNear, Z1: zFar})
 	}
 	return out, notes, nil
-}
-
-// noiseDepth returns the depth (at speed c) beyond which the smoothed mean
-// echo power stays within 10 dB of the quietest stretch of the record.
-func noiseDepth(ch *recon.Channels, c float64) float64 {
-	pw := make([]float64, ch.NS)
-	for e := 0; e < ch.NE; e++ {
-		for j := 0; j < ch.NN; j++ {
-			for n, v := range ch.Row(e, j) {
-				pw[n] += float64(real(v))*float64(real(v)) + float64(imag(v))*float64(imag(v))
-			}
-		}
-	}
-	win := max(1, int(math.Round(2e-3/c*ch.FS)))
-	sm := make([]float64, len(pw))
-	var s float64
-	for i := range pw {
-		s += pw[i]
-		if i >= win {
-			s -= pw[i-win]
-		}
-		sm[i] = s / float64(min(i+1, win))
-	}
-	start := len(sm) / 5
-	floor := math.Inf(1)
-	for n := start; n < len(sm); n++ {
-		floor = math.Min(floor, sm[n])
-	}
-	last := len(sm) - 1
-	for last > start && sm[last] < 10*floor {
-		last--
-	}
-	return c * (ch.T0 + float64(last)/ch.FS) / 2
 }
 
 var _ = sort.Float64s

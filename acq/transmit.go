@@ -4,6 +4,8 @@ import (
 	"fmt"
 	"math"
 	"sort"
+
+	"celerity/internal/dsp"
 )
 
 // Firing-delay builders. Each returns delays relative to the event's t = 0,
@@ -346,48 +348,8 @@ func FitVirtualSource(els []Element, ev *Event, c float64) Wavefront {
 }
 
 func fitParabola(xs, ys []float64) (a, b, q float64) {
-	// Normal equations for [1 x x^2], solved by Cramer's rule on centred x.
-	n := float64(len(xs))
-	mx := 0.0
-	for _, x := range xs {
-		mx += x
-	}
-	mx /= n
-	var s [5]float64
-	var t [3]float64
-	for i, x0 := range xs {
-		x := x0 - mx
-		p := 1.0
-		for k := range 5 {
-			s[k] += p
-			if k < 3 {
-				t[k] += p * ys[i]
-			}
-			p *= x
-		}
-	}
-	m := [3][3]float64{{s[0], s[1], s[2]}, {s[1], s[2], s[3]}, {s[2], s[3], s[4]}}
-	det := det3(m)
-	if det == 0 {
-		return 0, 0, 0
-	}
-	sol := [3]float64{}
-	for k := range 3 {
-		mk := m
-		for r := range 3 {
-			mk[r][k] = t[r]
-		}
-		sol[k] = det3(mk) / det
-	}
-	// back from centred x: y = A + B (x - mx) + Q (x - mx)^2
-	A, B, Q := sol[0], sol[1], sol[2]
-	return A - B*mx + Q*mx*mx, B - 2*Q*mx, Q
-}
-
-func det3(m [3][3]float64) float64 {
-	return m[0][0]*(m[1][1]*m[2][2]-m[1][2]*m[2][1]) -
-		m[0][1]*(m[1][0]*m[2][2]-m[1][2]*m[2][0]) +
-		m[0][2]*(m[1][0]*m[2][1]-m[1][1]*m[2][0])
+	a, b, q, _ = dsp.FitQuadratic(xs, ys)
+	return a, b, q
 }
 
 // lmVirtualSource refines (vx, vz) by Levenberg-Marquardt; T0 is solved in
@@ -468,21 +430,7 @@ func lmVirtualSource(xs, zs, ds []float64, c, sign, vx, vz float64) Wavefront {
 	return Wavefront{Kind: kind, C: c, VX: vx, VZ: vz, Sign: sign, T0: t0, RMSResidual: math.Sqrt(ss / float64(n))}
 }
 
-func solve3(m [3][3]float64, b [3]float64) ([3]float64, bool) {
-	d := det3(m)
-	if d == 0 || math.IsNaN(d) || math.IsInf(d, 0) {
-		return b, false
-	}
-	var x [3]float64
-	for k := range 3 {
-		mk := m
-		for r := range 3 {
-			mk[r][k] = b[r]
-		}
-		x[k] = det3(mk) / d
-	}
-	return x, true
-}
+func solve3(m [3][3]float64, b [3]float64) ([3]float64, bool) { return dsp.Solve3(m, b) }
 
 // SequenceSummary describes the events of an acquisition, grouped by kind.
 type SequenceSummary struct {

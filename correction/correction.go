@@ -7,6 +7,7 @@ import (
 
 	"celerity/aberration"
 	"celerity/acq"
+	"celerity/internal/dsp"
 	"celerity/recon"
 	"celerity/speed"
 )
@@ -82,7 +83,7 @@ func RemoveQuadratic(p, x []float64) []float64 {
 		}
 	}
 	m := [3][3]float64{{s[0], s[1], s[2]}, {s[1], s[2], s[3]}, {s[2], s[3], s[4]}}
-	c, ok := solve3(m, t)
+	c, ok := dsp.Solve3(m, t)
 	out := make([]float64, len(p))
 	for i, v := range p {
 		if ok {
@@ -92,25 +93,6 @@ func RemoveQuadratic(p, x []float64) []float64 {
 		}
 	}
 	return out
-}
-
-func solve3(m [3][3]float64, b [3]float64) ([3]float64, bool) {
-	det := func(m [3][3]float64) float64 {
-		return m[0][0]*(m[1][1]*m[2][2]-m[1][2]*m[2][1]) - m[0][1]*(m[1][0]*m[2][2]-m[1][2]*m[2][0]) + m[0][2]*(m[1][0]*m[2][1]-m[1][1]*m[2][0])
-	}
-	d := det(m)
-	var x [3]float64
-	if d == 0 || math.IsNaN(d) {
-		return x, false
-	}
-	for k := range 3 {
-		mk := m
-		for r := range 3 {
-			mk[r][k] = b[r]
-		}
-		x[k] = det(mk) / d
-	}
-	return x, true
 }
 
 func elementX(els []acq.Element) []float64 {

@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 
+	"celerity/internal/dsp"
 	"celerity/internal/jsonx"
 
 	"celerity/aberration"
@@ -141,7 +142,7 @@ func curvatureSpeedStd(p, x []float64, z, c float64) float64 {
 	w := make([]float64, n)
 	for i, xi := range x {
 		// solve m * a = e_i-column of A^T, take the quadratic coefficient
-		a, ok := solve3(m, [3]float64{1, xi, xi * xi})
+		a, ok := dsp.Solve3(m, [3]float64{1, xi, xi * xi})
 		if !ok {
 			return 0
 		}

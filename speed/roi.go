@@ -39,7 +39,27 @@ func AutoRegion(a *acq.Acquisition, ch *recon.Channels, c, fnum float64) (Region
 	zNear = math.Max(zNear, c*a.StartTimeS/2+10*lam)
 	tEnd := a.StartTimeS + a.Duration()
 	zFar := 0.9 * c * tEnd / 2
-	// Mean baseband power against time, smoothed over about 1 mm of depth.
+	if zSNR := NoiseDepth(ch, c); zSNR < zFar {
+		zFar = zSNR
+		notes = append(notes, fmt.Sprintf("depths beyond %.1f mm excluded: echoes within 10 dB of the noise floor", zSNR*1e3))
+	}
+	if zFar-zNear < 4*lam {
+		return Region{}, notes, fmt.Errorf("no usable depth range: near field ends at %.1f mm, echoes reach the noise floor at %.1f mm", zNear*1e3, zFar*1e3)
+	}
+	half := 0.3 * aperture
+	if p.Geometry != acq.Linear || aperture < 0.02 {
+		// phased and convex arrays: a central wedge, approximated by a rectangle
+		half = math.Max(0.3*aperture, (zNear+zFar)/2*math.Tan(15*math.Pi/180))
+	}
+	return Region{X0: -half, X1: half, Z0: zNear, Z1: zFar}, notes, nil
+}
+
+// NoiseDepth returns the depth (at speed c) beyond which the echoes stay
+// within 10 dB of the record's noise floor: the mean baseband power of all
+// channels against time, smoothed over about 2 mm of depth, compared with
+// its quietest stretch after the first fifth of the record. Without a
+// noise-dominated stretch it returns the end of the record.
+func NoiseDepth(ch *recon.Channels, c float64) float64 {
 	pw := make([]float64, ch.NS)
 	for e := 0; e < ch.NE; e++ {
 		for j := 0; j < ch.NN; j++ {
@@ -60,21 +80,8 @@ func AutoRegion(a *acq.Acquisition, ch *recon.Channels, c, fnum float64) (Region
 		for last > start && sm[last] < 10*floor {
 			last--
 		}
-		zSNR := c * (ch.T0 + float64(last)/ch.FS) / 2
-		if zSNR < zFar {
-			zFar = zSNR
-			notes = append(notes, fmt.Sprintf("depths beyond %.1f mm excluded: echoes within 10 dB of the noise floor", zSNR*1e3))
-		}
 	}
-	if zFar-zNear < 4*lam {
-		return Region{}, notes, fmt.Errorf("no usable depth range: near field ends at %.1f mm, echoes reach the noise floor at %.1f mm", zNear*1e3, zFar*1e3)
-	}
-	half := 0.3 * aperture
-	if p.Geometry != acq.Linear || aperture < 0.02 {
-		// phased and convex arrays: a central wedge, approximated by a rectangle
-		half = math.Max(0.3*aperture, (zNear+zFar)/2*math.Tan(15*math.Pi/180))
-	}
-	return Region{X0: -half, X1: half, Z0: zNear, Z1: zFar}, notes, nil
+	return c * (ch.T0 + float64(last)/ch.FS) / 2
 }
 
 func movingMean(v []float64, w int) []float64 {

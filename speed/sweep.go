@@ -504,44 +504,8 @@ func refinePeak(sp, vals []float64, coarse float64) (float64, bool) {
 
 // quadFit fits y = c2 x^2 + c1 x + c0 by least squares.
 func quadFit(xs, ys []float64) (c2, c1, c0 float64) {
-	var s [5]float64
-	var t [3]float64
-	for i, x := range xs {
-		p := 1.0
-		for k := 0; k < 5; k++ {
-			s[k] += p
-			if k < 3 {
-				t[k] += p * ys[i]
-			}
-			p *= x
-		}
-	}
-	// normal equations in (c0, c1, c2)
-	m := [3][3]float64{{s[0], s[1], s[2]}, {s[1], s[2], s[3]}, {s[2], s[3], s[4]}}
-	sol, ok := solve3(m, t)
-	if !ok {
-		return 0, 0, 0
-	}
-	return sol[2], sol[1], sol[0]
-}
-
-func solve3(m [3][3]float64, b [3]float64) ([3]float64, bool) {
-	det := func(m [3][3]float64) float64 {
-		return m[0][0]*(m[1][1]*m[2][2]-m[1][2]*m[2][1]) - m[0][1]*(m[1][0]*m[2][2]-m[1][2]*m[2][0]) + m[0][2]*(m[1][0]*m[2][1]-m[1][1]*m[2][0])
-	}
-	d := det(m)
-	if d == 0 || math.IsNaN(d) {
-		return b, false
-	}
-	var x [3]float64
-	for k := range 3 {
-		mk := m
-		for r := range 3 {
-			mk[r][k] = b[r]
-		}
-		x[k] = det(mk) / d
-	}
-	return x, true
+	c0, c1, c2, _ = dsp.FitQuadratic(xs, ys)
+	return c2, c1, c0
 }
 
 // secondPeak returns the index of a local maximum of the curve at least

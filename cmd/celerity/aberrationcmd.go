@@ -12,6 +12,7 @@ import (
 	"celerity/acq"
 	"celerity/internal/atomicfile"
 	"celerity/internal/npy"
+	"celerity/metrics"
 	"celerity/recon"
 	"celerity/report"
 	"celerity/speed"
@@ -181,43 +182,15 @@ func (c *AberrationCmd) Run(g *Globals) error {
 }
 
 // profileVsTruth compares an estimated profile with the truth after removing
-// mean and trend from both: rms error, correlation, and the truth's rms.
+// mean and trend from both (metrics.ProfileError): rms error, correlation,
+// and the truth's detrended rms.
 func profileVsTruth(est, truth, x []float64) (errRMS, corr, truthRMS float64) {
-	e := detrendProfile(est, x)
-	t := detrendProfile(truth, x)
-	var se, st, sc, see float64
-	for i := range e {
-		d := e[i] - t[i]
-		se += d * d
-		st += t[i] * t[i]
-		see += e[i] * e[i]
-		sc += e[i] * t[i]
+	errRMS, corr = metrics.ProfileError(est, truth, x)
+	t, _, _ := metrics.Detrend(truth, x)
+	for _, v := range t {
+		truthRMS += v * v
 	}
-	n := float64(len(e))
-	errRMS = math.Sqrt(se / n)
-	truthRMS = math.Sqrt(st / n)
-	if st > 0 && see > 0 {
-		corr = sc / math.Sqrt(st*see)
-	}
-	return
-}
-
-func detrendProfile(p, x []float64) []float64 {
-	var n, sx, sy, sxx, sxy float64
-	for i, v := range p {
-		n++
-		sx += x[i]
-		sy += v
-		sxx += x[i] * x[i]
-		sxy += x[i] * v
-	}
-	slope := (n*sxy - sx*sy) / (n*sxx - sx*sx)
-	icpt := (sy - slope*sx) / n
-	out := make([]float64, len(p))
-	for i, v := range p {
-		out[i] = v - icpt - slope*x[i]
-	}
-	return out
+	return errRMS, corr, math.Sqrt(truthRMS / float64(len(t)))
 }
 
 // writeProfileFiles writes profile.csv, profile.npy, profile.png and
@@ -265,7 +238,7 @@ func profilePlot(p, x, truth []float64) report.LinePlot {
 	lp := report.LinePlot{Title: "arrival-time error profile (mean and trend removed)", XLabel: "element position (mm)", YLabel: "arrival-time error (ns)",
 		Series: []report.Series{{Name: "estimate", X: xs, Y: ys, Points: true}}}
 	if truth != nil {
-		t := detrendProfile(truth, x)
+		t, _, _ := metrics.Detrend(truth, x)
 		ts := make([]float64, len(t))
 		for i := range t {
 			ts[i] = t[i] * 1e9
