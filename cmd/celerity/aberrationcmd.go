@@ -22,7 +22,7 @@ import (
 type AberrationCmd struct {
 	Dir string `arg:"" help:"Acquisition folder." type:"existingdir" placeholder:"DIR"`
 	modelFlags
-	Patches    string `help:"Isoplanatic patches in mm, x0:x1,z0:z1 separated by semicolons (default: three side by side across the array)." placeholder:"LIST"`
+	Patches    string `help:"Isoplanatic patches in mm, x0:x1,z0:z1 separated by semicolons, e.g. --patches='-19:-6,15:35;-6:6,15:35' (default: three side by side across the array)." placeholder:"LIST"`
 	Method     string `help:"Estimator: beamsum (each element against the beamformed sum), pairs (least squares over many element pairs) or neighbour (integrated neighbour differences)." default:"beamsum" enum:"beamsum,pairs,neighbour"`
 	Iterations int    `help:"Largest number of correct / re-form / re-estimate rounds." default:"6"`
 	Out        string `help:"Output folder to create: profile.csv, profile.npy, profile.png." placeholder:"OUT"`

@@ -19,7 +19,7 @@ type CompareCmd struct {
 	A        string  `arg:"" help:"First image folder (image.npy, x_m.npy, z_m.npy) or acquisition folder." type:"existingdir" placeholder:"A"`
 	B        string  `arg:"" help:"Second image folder or acquisition folder." type:"existingdir" placeholder:"B"`
 	Regions  string  `help:"Region pairs (YAML: pairs of inside/outside regions in mm)." type:"existingfile" placeholder:"FILE"`
-	Targets  string  `help:"Point targets to measure, x:z in mm separated by semicolons." placeholder:"LIST"`
+	Targets  string  `help:"Point targets to measure, x:z in mm separated by semicolons, e.g. --targets='-6:14;0:22'." placeholder:"LIST"`
 	SpeedMPS float64 `help:"Speed for forming images of acquisition folders (default: each one's assumed speed)." name:"speed-mps"`
 	JSON     bool    `name:"json" help:"Print the result as one JSON object on stdout."`
 }

@@ -24,7 +24,7 @@ type imagingFlags struct {
 	FNumber   float64 `help:"Receive F-number (0: whole array)." default:"1.5" name:"fnumber"`
 	Window    string  `help:"Receive apodisation window: boxcar, hann or tukey[:alpha]." default:"hann"`
 	Interp    string  `help:"Interpolation of channel data: linear or cubic." default:"linear" enum:"linear,cubic"`
-	Grid      string  `help:"Pixel grid in mm: x0:x1:dx,z0:z1:dz (rectangular) or sector:r0:r1:dr,th0:th1:dth (mm and degrees, from the array centre). Default: fitted to the probe and record." placeholder:"SPEC"`
+	Grid      string  `help:"Pixel grid in mm: x0:x1:dx,z0:z1:dz (rectangular), e.g. --grid=-10:10:0.1,5:40:0.05 (write = before a leading minus sign), or sector:r0:r1:dr,th0:th1:dth (mm and degrees, from the array centre). Default: fitted to the probe and record." placeholder:"SPEC"`
 	DynamicDB float64 `help:"Displayed dynamic range of B-mode images, dB." default:"60" name:"dynamic-range-db"`
 }
 

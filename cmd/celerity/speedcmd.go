@@ -24,7 +24,7 @@ type SpeedCmd struct {
 	Method            string  `help:"auto: the point-target fit when the data hold bright isolated targets that fit well, else the sweep; sweep: maximise a focus criterion over assumed speeds; targets: fit the arrival-time curves of bright point targets." default:"auto" enum:"auto,sweep,targets"`
 	Criterion         string  `help:"Focus criterion of the sweep: coherence-factor, lag-one-coherence, short-lag-coherence, brightness or normalized-variance." default:"coherence-factor"`
 	RangeMPS          string  `help:"Speeds to search, min:max in m/s." default:"1400:1650" name:"range-mps"`
-	ROI               string  `help:"Region of interest in mm at the scanner's assumed speed, x0:x1,z0:z1 (default: chosen automatically, excluding the near field and noise-dominated depths)." name:"roi" placeholder:"SPEC"`
+	ROI               string  `help:"Region of interest in mm at the scanner's assumed speed, x0:x1,z0:z1, e.g. --roi=-10:10,15:30 (write = before a leading minus sign). Default: chosen automatically, excluding the near field and noise-dominated depths." name:"roi" placeholder:"SPEC"`
 	ByDepth           bool    `help:"Also resolve the speed by depth: average speeds in depth windows, inverted to layer speeds (Dix)." name:"by-depth"`
 	WindowMM          float64 `help:"Depth window for --by-depth, mm." default:"5" name:"window-mm"`
 	NominalMPS        float64 `help:"Specified speed of the material, m/s, for a pass/fail verdict." name:"nominal-mps"`
