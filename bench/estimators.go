@@ -9,6 +9,7 @@ import (
 
 	"celerity/aberration"
 	"celerity/acq"
+	"celerity/correction"
 	"celerity/recon"
 	"celerity/speed"
 )
@@ -84,6 +85,7 @@ const (
 	SpeedShortLagCoherence = "speed-short-lag-coherence"
 	SpeedBrightness        = "speed-brightness"
 	SpeedTargets           = "speed-targets"
+	SpeedAberrationAware   = "speed-aberration-aware"
 	AberrationBeamsum      = "aberration-beamsum"
 	AberrationPairs        = "aberration-pairs"
 	AberrationNeighbour    = "aberration-neighbour"
@@ -91,7 +93,7 @@ const (
 
 // BuiltinNames lists the built-in estimators in canonical order.
 func BuiltinNames() []string {
-	return []string{SpeedCoherenceFactor, SpeedShortLagCoherence, SpeedBrightness, SpeedTargets,
+	return []string{SpeedCoherenceFactor, SpeedShortLagCoherence, SpeedBrightness, SpeedTargets, SpeedAberrationAware,
 		AberrationBeamsum, AberrationPairs, AberrationNeighbour}
 }
 
@@ -115,6 +117,8 @@ func Builtin(name string) (Estimator, error) {
 		return sweepEstimator{name, speed.Brightness}, nil
 	case SpeedTargets:
 		return targetsEstimator{}, nil
+	case SpeedAberrationAware:
+		return awareEstimator{}, nil
 	case AberrationBeamsum:
 		return aberrationEstimator{name, aberration.Beamsum}, nil
 	case AberrationPairs:
@@ -152,6 +156,22 @@ func fromSpeed(r *speed.Result) *Estimate {
 	est := noEstimate()
 	est.SpeedMPS, est.CI95MPS, est.Confidence = r.SpeedMPS, r.CI95MPS, r.Confidence
 	return est
+}
+
+// awareEstimator is the speed command's default sweep: the coherence-factor
+// sweep, a check for a near-field aberrator and, when one is found, the
+// speed re-estimated with its profile (correction.EstimateSpeed).
+type awareEstimator struct{}
+
+func (awareEstimator) Name() string       { return SpeedAberrationAware }
+func (awareEstimator) NeedsTargets() bool { return false }
+
+func (awareEstimator) Estimate(_ context.Context, in *Input) (*Estimate, error) {
+	r, _, err := correction.EstimateSpeed(in.Acq, in.Channels, sweepConfig(speed.CoherenceFactor))
+	if err != nil {
+		return nil, err
+	}
+	return fromSpeed(r), nil
 }
 
 // targetsEstimator is the point-target arrival-time fit with its defaults.
