@@ -45,6 +45,10 @@ type LinePlot struct {
 	Series                []Series
 	Bands                 []Band
 	VLines                []VLine
+	// XSpan, when XSpan[0] < XSpan[1] (both finite), is a range the x axis
+	// spans at least, e.g. [0.5, n + 0.5] for n categories at x = 1..n;
+	// the axis still covers all the data. The zero value follows the data.
+	XSpan [2]float64
 	// WidthCM and HeightCM are the figure size; zero means 16 x 10 cm.
 	WidthCM, HeightCM float64
 	// DPI is the output resolution; zero means DefaultDPI.
@@ -213,6 +217,9 @@ func renderLine(lp LinePlot) (*vgimg.Canvas, *figure, error) {
 	p.X.Padding, p.Y.Padding = 0, 0
 	padRange(&p.X, xMargin)
 	padRange(&p.Y, yMargin)
+	if !empty {
+		spanRange(&p.X, lp.XSpan)
+	}
 	p.Add(frame{width: vg.Points(0.8)})
 	legend = append(append(seriesLegend, refLegend...), bandLegend...)
 
@@ -347,6 +354,16 @@ func padRange(a *plot.Axis, frac float64) {
 	}
 	a.Min -= frac * span
 	a.Max += frac * span
+}
+
+// spanRange widens a's range to hold span, when span[0] < span[1] and both
+// are finite.
+func spanRange(a *plot.Axis, span [2]float64) {
+	if !(span[0] < span[1]) || !finite(span[0]) || !finite(span[1]) {
+		return
+	}
+	a.Min = math.Min(a.Min, span[0])
+	a.Max = math.Max(a.Max, span[1])
 }
 
 // noData is a plot.Plotter that writes "no data" in the middle of the data

@@ -8,6 +8,7 @@ import (
 	"strings"
 	"testing"
 
+	"gonum.org/v1/plot"
 	"gonum.org/v1/plot/vg"
 )
 
@@ -40,6 +41,36 @@ func TestLineGolden(t *testing.T) {
 		t.Fatal(err)
 	}
 	checkGolden(t, "line_band_vline.png", buf.Bytes())
+}
+
+// TestXSpan: the span widens the axis to hold it, never narrows it below
+// the data, and is ignored when empty, reversed or not finite.
+func TestXSpan(t *testing.T) {
+	t.Parallel()
+	for _, c := range []struct {
+		min, max float64
+		span     [2]float64
+		want     [2]float64
+	}{
+		{1, 2, [2]float64{0.5, 3.5}, [2]float64{0.5, 3.5}},
+		{0, 5, [2]float64{0.5, 3.5}, [2]float64{0, 5}},
+		{1, 2, [2]float64{}, [2]float64{1, 2}},
+		{1, 2, [2]float64{3, 0}, [2]float64{1, 2}},
+		{1, 2, [2]float64{math.NaN(), 4}, [2]float64{1, 2}},
+	} {
+		a := plot.New().X
+		a.Min, a.Max = c.min, c.max
+		spanRange(&a, c.span)
+		if a.Min != c.want[0] || a.Max != c.want[1] {
+			t.Errorf("data %g..%g, span %v: axis %g..%g, want %v", c.min, c.max, c.span, a.Min, a.Max, c.want)
+		}
+	}
+	// a strip plot of two categories draws
+	lp := LinePlot{Series: []Series{{Name: "a", X: []float64{1, math.NaN(), 1.04}, Y: []float64{1500, math.NaN(), 1510}, Points: true}},
+		XSpan: [2]float64{0.5, 2.5}, WidthCM: 8, HeightCM: 6, DPI: 72}
+	if err := LinePNG(io.Discard, lp); err != nil {
+		t.Fatal(err)
+	}
 }
 
 func TestLineErrors(t *testing.T) {

@@ -36,6 +36,7 @@ type CLI struct {
 	Correct    CorrectCmd    `cmd:"" help:"Estimate speed and profile, re-form the image and report before/after metrics (report.html)."`
 	Compare    CompareCmd    `cmd:"" help:"Measure two images or acquisitions side by side with the same regions and targets."`
 	Bench      BenchCmd      `cmd:"" help:"Score speed and aberration estimators (built-in and external) against ground truth on a suite of simulated cases."`
+	Cohort     CohortCmd     `cmd:"" help:"Run the estimators over many acquisitions (folders or a CSV manifest with metadata) and write one table, plots and report.html."`
 	Demo       DemoCmd       `cmd:"" help:"Run the main job end to end on built-in simulated data."`
 }
 

@@ -75,6 +75,9 @@ type Progress struct {
 	// ETA is the time left, estimated as Remaining x Elapsed / (jobs
 	// finished in this run); -1 until a job has finished in this run.
 	ETA time.Duration
+	// Last is the record of the job whose end this report follows (nil in
+	// the first report), e.g. for a log line per finished job.
+	Last *Record
 }
 
 // String is a one-line summary, e.g. "12/40 done, 1 failed, 28 left, about 3m10s".
@@ -168,21 +171,21 @@ func Run(ctx context.Context, jobList []Job, cfg Config) (*Outcome, error) {
 	start := time.Now()
 	var mu sync.Mutex
 	running, ranNow := 0, 0
-	report := func() {
+	report := func(last *Record) {
 		// called with mu held
 		if cfg.Progress == nil {
 			return
 		}
 		done := out.Skipped + ranNow
 		p := Progress{Total: len(mine), Done: done, Failed: out.Failed, Skipped: out.Skipped,
-			Running: running, Remaining: len(mine) - done, Elapsed: time.Since(start), ETA: -1}
+			Running: running, Remaining: len(mine) - done, Elapsed: time.Since(start), ETA: -1, Last: last}
 		if ranNow > 0 {
 			p.ETA = time.Duration(float64(p.Remaining) * float64(p.Elapsed) / float64(ranNow))
 		}
 		cfg.Progress(p)
 	}
 	mu.Lock()
-	report()
+	report(nil)
 	mu.Unlock()
 
 	queue := make(chan int)
@@ -222,7 +225,7 @@ func Run(ctx context.Context, jobList []Job, cfg Config) (*Outcome, error) {
 				if rec.Status == Failed {
 					out.Failed++
 				}
-				report()
+				report(rec)
 				mu.Unlock()
 			}
 		}()

@@ -299,17 +299,26 @@ func TestProgress(t *testing.T) {
 	if len(ps) != 8 {
 		t.Fatalf("%d progress reports, want 8 (start and one per job)", len(ps))
 	}
-	if ps[0].Done != 0 || ps[0].Remaining != 7 || ps[0].ETA != -1 {
+	if ps[0].Done != 0 || ps[0].Remaining != 7 || ps[0].ETA != -1 || ps[0].Last != nil {
 		t.Errorf("first report %+v", ps[0])
 	}
 	last := ps[len(ps)-1]
 	if last.Done != 7 || last.Failed != 1 || last.Remaining != 0 || last.Total != 7 || last.ETA != 0 {
 		t.Errorf("last report %+v", last)
 	}
+	lastIDs := map[string]bool{}
 	for i := 1; i < len(ps); i++ {
-		if ps[i].Done != i || ps[i].ETA < 0 || ps[i].Done+ps[i].Remaining != 7 {
+		if ps[i].Done != i || ps[i].ETA < 0 || ps[i].Done+ps[i].Remaining != 7 || ps[i].Last == nil {
 			t.Errorf("report %d: %+v", i, ps[i])
+			continue
 		}
+		lastIDs[ps[i].Last.ID] = true
+		if ps[i].Last.ID == "z-fail" && (ps[i].Last.Status != Failed || ps[i].Last.Error != "no") {
+			t.Errorf("report %d: last %+v, want the failed record", i, *ps[i].Last)
+		}
+	}
+	if len(lastIDs) != 7 {
+		t.Errorf("the reports name %d distinct finished jobs, want 7", len(lastIDs))
 	}
 	if s := (Progress{Total: 40, Done: 12, Failed: 1, Remaining: 28, ETA: 190 * time.Second}).String(); s != "12/40 done, 1 failed, 28 left, about 3m10s" {
 		t.Errorf("String: %q", s)
