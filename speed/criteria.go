@@ -28,6 +28,15 @@ const (
 	// developed speckle, where it is 1 at any focus, and serves images with
 	// structure.
 	NormalizedVariance
+	// TransmitCoherence is the coherence factor taken across the transmit
+	// events instead of the receive elements: |sum_e I_e|^2 / (E sum_e |I_e|^2)
+	// with I_e the receive-focused image of event e, pooled over the region
+	// as a ratio of sums. The events' images line up in phase only at the
+	// right speed, and, unlike the receive-element criteria, it carries no
+	// tilt towards high speeds from the receive geometry when the transmit
+	// focus is weak (compounded plane waves; docs/validation.md). It needs
+	// three or more events.
+	TransmitCoherence
 )
 
 var criterionNames = map[Criterion]string{
@@ -36,6 +45,7 @@ var criterionNames = map[Criterion]string{
 	ShortLagCoherence:  "short-lag-coherence",
 	Brightness:         "brightness",
 	NormalizedVariance: "normalized-variance",
+	TransmitCoherence:  "transmit-coherence",
 }
 
 func (c Criterion) String() string {
@@ -47,7 +57,7 @@ func (c Criterion) String() string {
 
 // Criteria lists every criterion.
 func Criteria() []Criterion {
-	return []Criterion{CoherenceFactor, LagOneCoherence, ShortLagCoherence, Brightness, NormalizedVariance}
+	return []Criterion{CoherenceFactor, LagOneCoherence, ShortLagCoherence, Brightness, NormalizedVariance, TransmitCoherence}
 }
 
 // ParseCriterion parses a criterion name.
@@ -71,6 +81,8 @@ type sums struct {
 	lagNum     []float64
 	lagDen     []float64
 	i1, i2, np float64 // sum I, sum I^2, pixel count
+	txCoh      float64 // sum |sum_e I_e|^2
+	txInc      float64 // sum E sum_e |I_e|^2
 }
 
 func newSums(maxLag int) sums {
@@ -87,10 +99,12 @@ func (s *sums) add(o *sums) {
 	s.i1 += o.i1
 	s.i2 += o.i2
 	s.np += o.np
+	s.txCoh += o.txCoh
+	s.txInc += o.txInc
 }
 
 func (s *sums) reset() {
-	s.coh, s.inc, s.i1, s.i2, s.np = 0, 0, 0, 0, 0
+	s.coh, s.inc, s.i1, s.i2, s.np, s.txCoh, s.txInc = 0, 0, 0, 0, 0, 0, 0
 	clear(s.lagNum)
 	clear(s.lagDen)
 }
@@ -169,6 +183,11 @@ func (s *sums) value(c Criterion, maxLag int) float64 {
 		}
 		m := s.i1 / s.np
 		return (s.i2/s.np - m*m) / (m * m)
+	case TransmitCoherence:
+		if s.txInc == 0 {
+			return math.NaN()
+		}
+		return s.txCoh / s.txInc
 	}
 	return math.NaN()
 }

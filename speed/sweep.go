@@ -18,7 +18,7 @@ type SweepConfig struct {
 	MinMPS, MaxMPS float64   // search range; default 1400 to 1650 m/s
 	CoarseStepMPS  float64   // default 10 m/s
 	FineStepMPS    float64   // default 2 m/s
-	Criterion      Criterion // default DefaultCriterion
+	Criterion      Criterion // default DefaultCriterionFor the events
 	// Region is where the criterion is evaluated, at RefSpeedMPS; nil
 	// chooses one with AutoRegion.
 	Region      *Region
@@ -74,9 +74,35 @@ func EvenEvents(n, max int) []int {
 // MaxPixels bounds the pixels of a sweep region.
 const MaxPixels = 12000
 
-// DefaultCriterion is the criterion Sweep uses when none is given; see
-// docs/validation.md for the comparison that chose it.
-const DefaultCriterion = CoherenceFactor
+// DefaultCriterionFor returns the criterion Sweep uses when none is given,
+// for the events it will use (nil: all): TransmitCoherence for three or
+// more plane or diverging waves, CoherenceFactor otherwise (one event,
+// synthetic aperture, focused beams). On compounded plane waves the
+// receive-element criteria read high, the more so towards the array and
+// the narrower the span of angles, and the transmit coherence does not;
+// docs/validation.md has the comparison that chose them.
+func DefaultCriterionFor(a *acq.Acquisition, events []int) Criterion {
+	if events == nil {
+		events = make([]int, a.NumEvents())
+		for i := range events {
+			events[i] = i
+		}
+	}
+	if len(events) < 3 {
+		return CoherenceFactor
+	}
+	els := a.Probe.Elements()
+	for _, e := range events {
+		if e < 0 || e >= a.NumEvents() {
+			return CoherenceFactor
+		}
+		w := acq.DeriveWavefront(els, &a.Events[e], a.AssumedSpeedMPS, 0, a.Probe.CenterFrequencyHz)
+		if w.Kind != acq.KindPlaneWave && w.Kind != acq.KindDiverging {
+			return CoherenceFactor
+		}
+	}
+	return TransmitCoherence
+}
 
 // Point is one evaluated speed.
 type Point struct {
@@ -140,10 +166,7 @@ func (cfg *SweepConfig) defaults(a *acq.Acquisition) error {
 	if (cfg.MaxMPS-cfg.MinMPS)/cfg.CoarseStepMPS > 2000 {
 		return errors.New("too many speeds in the coarse grid")
 	}
-	if cfg.Criterion == 0 {
-		cfg.Criterion = DefaultCriterion
-	}
-	if _, ok := criterionNames[cfg.Criterion]; !ok {
+	if _, ok := criterionNames[cfg.Criterion]; !ok && cfg.Criterion != 0 {
 		return errors.New("unknown criterion")
 	}
 	if cfg.RefSpeedMPS == 0 {
@@ -166,6 +189,18 @@ func (cfg *SweepConfig) defaults(a *acq.Acquisition) error {
 	}
 	if cfg.Events == nil {
 		cfg.Events = EvenEvents(a.NumEvents(), MaxEvents)
+	}
+	if cfg.Criterion == 0 {
+		cfg.Criterion = DefaultCriterionFor(a, cfg.Events)
+	}
+	if cfg.Criterion == TransmitCoherence {
+		n := len(cfg.Events)
+		if cfg.Events == nil {
+			n = a.NumEvents()
+		}
+		if n < 3 {
+			return fmt.Errorf("the transmit-coherence criterion needs three or more events, have %d", n)
+		}
 	}
 	if cfg.Model == nil {
 		els := a.Probe.Elements()
@@ -206,6 +241,9 @@ func (ev *evaluator) run(c float64) ([]sums, error) {
 	if err != nil {
 		return nil, err
 	}
+	if ev.cfg.Criterion == TransmitCoherence {
+		return ev.transmitSums(bf)
+	}
 	ev.buf, err = bf.Aperture(ev.buf, ev.ch, nil)
 	if err != nil {
 		return nil, err
@@ -218,6 +256,40 @@ func (ev *evaluator) run(c float64) ([]sums, error) {
 	}
 	for p := range ev.xs {
 		out[ev.tiles[p]].accumulate(ev.buf[p*n:(p+1)*n], mask[p*n:(p+1)*n])
+	}
+	return out, nil
+}
+
+// transmitSums forms each event's image on its own and pools the
+// transmit-coherence sums per tile.
+func (ev *evaluator) transmitSums(bf *recon.Beamformer) ([]sums, error) {
+	np := len(ev.xs)
+	sum := make([]complex128, np)
+	inc := make([]float64, np)
+	img := make([]complex64, np)
+	ne := len(bf.Events())
+	var err error
+	for i := range ne {
+		if img, err = bf.FormEvents(img, ev.ch, []int{i}); err != nil {
+			return nil, err
+		}
+		for p, v := range img {
+			sum[p] += complex128(v)
+			inc[p] += float64(real(v))*float64(real(v)) + float64(imag(v))*float64(imag(v))
+		}
+	}
+	out := make([]sums, ev.nTiles)
+	for t := range out {
+		out[t] = newSums(ev.maxLag)
+	}
+	for p := range np {
+		o := &out[ev.tiles[p]]
+		I := real(sum[p])*real(sum[p]) + imag(sum[p])*imag(sum[p])
+		o.txCoh += I
+		o.txInc += float64(ne) * inc[p]
+		o.i1 += I
+		o.i2 += I * I
+		o.np++
 	}
 	return out, nil
 }
@@ -451,7 +523,7 @@ func intervalFrom(peaks []float64, est, frac float64) (se float64, ci [2]float64
 }
 
 func scaleSums(s sums, w float64) sums {
-	o := sums{coh: s.coh * w, inc: s.inc * w, i1: s.i1 * w, i2: s.i2 * w, np: s.np * w,
+	o := sums{coh: s.coh * w, inc: s.inc * w, i1: s.i1 * w, i2: s.i2 * w, np: s.np * w, txCoh: s.txCoh * w, txInc: s.txInc * w,
 		lagNum: make([]float64, len(s.lagNum)), lagDen: make([]float64, len(s.lagDen))}
 	for m := range s.lagNum {
 		o.lagNum[m] = s.lagNum[m] * w

@@ -164,7 +164,7 @@ func TestSweepCompounded(t *testing.T) {
 			if res.Confidence != High {
 				t.Errorf("confidence %q, want %q (notes %q)", res.Confidence, High, res.Notes)
 			}
-			if res.Criterion != DefaultCriterion.String() || res.Method != "sweep" || len(res.Curve) < 20 {
+			if res.Criterion != TransmitCoherence.String() || res.Method != "sweep" || len(res.Curve) < 20 {
 				t.Errorf("criterion %q, method %q, %d curve points", res.Criterion, res.Method, len(res.Curve))
 			}
 		})

@@ -22,7 +22,7 @@ import (
 type SpeedCmd struct {
 	Dir               string  `arg:"" help:"Acquisition folder." type:"existingdir" placeholder:"DIR"`
 	Method            string  `help:"auto: the point-target fit when the data hold bright isolated targets that fit well, else the sweep; sweep: maximise a focus criterion over assumed speeds; targets: fit the arrival-time curves of bright point targets." default:"auto" enum:"auto,sweep,targets"`
-	Criterion         string  `help:"Focus criterion of the sweep: coherence-factor, lag-one-coherence, short-lag-coherence, brightness or normalized-variance." default:"coherence-factor"`
+	Criterion         string  `help:"Focus criterion of the sweep: auto (transmit-coherence for three or more plane or diverging waves, else coherence-factor), coherence-factor, transmit-coherence, lag-one-coherence, short-lag-coherence, brightness or normalized-variance." default:"auto"`
 	RangeMPS          string  `help:"Speeds to search, min:max in m/s." default:"1400:1650" name:"range-mps"`
 	ROI               string  `help:"Region of interest in mm at the scanner's assumed speed, x0:x1,z0:z1, e.g. --roi=-10:10,15:30 (write = before a leading minus sign). Default: chosen automatically, excluding the near field and noise-dominated depths." name:"roi" placeholder:"SPEC"`
 	ByDepth           bool    `help:"Also resolve the speed by depth: average speeds in depth windows, inverted to layer speeds (Dix)." name:"by-depth"`
@@ -42,7 +42,11 @@ func (c *SpeedCmd) Help() string {
 	return `Estimates the bulk speed of sound with a 95 % interval and a confidence ("high" or "low", with
 the reason). The sweep forms aperture-domain data over a region that follows the echoes for each
 assumed speed, deriving each event's transmit wavefront from its firing delays, and maximises
-the focus criterion (coarse grid, fine grid, quadratic peak); the interval comes from a block
+the focus criterion (coarse grid, fine grid, quadratic peak). On compounded plane or diverging
+waves the default criterion is the coherence of the events' images (transmit-coherence): the
+receive-element coherence factor reads high there, the more so near the array and with a narrow
+span of angles; elsewhere it is the coherence factor across the receive elements. The interval
+comes from a block
 bootstrap over tiles of the region, combined with a systematic component of 0.15 %. The targets
 method fits the arrival-time curves of wires or other bright point targets.
 
@@ -151,9 +155,11 @@ func (c *SpeedCmd) sweepConfig(a *acq.Acquisition, g *Globals) (speed.SweepConfi
 	if err != nil {
 		return speed.SweepConfig{}, fmt.Errorf("--range-mps: %v", err)
 	}
-	cr, err := speed.ParseCriterion(c.Criterion)
-	if err != nil {
-		return speed.SweepConfig{}, fmt.Errorf("--criterion: %v", err)
+	var cr speed.Criterion // auto: zero, chosen by the sweep for the events it uses
+	if c.Criterion != "auto" {
+		if cr, err = speed.ParseCriterion(c.Criterion); err != nil {
+			return speed.SweepConfig{}, fmt.Errorf("--criterion: %v", err)
+		}
 	}
 	cfg := speed.SweepConfig{MinMPS: lo, MaxMPS: hi, Criterion: cr, Seed: c.Seed}
 	if c.ROI != "" {
