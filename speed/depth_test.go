@@ -124,13 +124,15 @@ func TestMergeLayers(t *testing.T) {
 
 // The layered case: 12 mm of fat-like tissue at 1450 m/s over 1570 m/s,
 // speckle 16 x 29 mm from 3 mm depth, 21 plane waves over +/-16 degrees
-// (delays at 1540 m/s), 20 dB SNR.
+// (delays at 1540 m/s), 20 dB SNR; its events 5..15 are 11 plane waves over
+// +/-8 degrees.
 //
-// The angle span matters near the array: with 11 angles over +/-8 degrees the
-// synthetic transmit focus is weak and, in a homogeneous 1450 m/s medium,
-// windows at 4-9 mm read 13-17 m/s high and at 7-12 mm 7-8 m/s high
-// (measured while writing this test); over +/-16 degrees the same windows
-// read 1.6-2.7 m/s high. docs/validation.md reports both.
+// The angle span matters near the array for the receive-element criteria:
+// with 11 angles over +/-8 degrees the synthetic transmit focus is weak and,
+// in a homogeneous medium, the coherence factor reads windows at 5-10 mm
+// 7-15 m/s high (docs/validation.md), which Dix then turns into a wrong
+// shallow layer. The default criterion on plane waves, the transmit
+// coherence, reads them within a few m/s, so both spans are tested.
 var fatSim simOnce
 
 const (
@@ -151,14 +153,29 @@ func fatCase(t testing.TB) (*acq.Acquisition, *recon.Channels) {
 
 func TestByDepthFatLayer(t *testing.T) {
 	t.Parallel()
+	for _, tc := range []struct {
+		name   string
+		events []int
+	}{{"21 angles over +/-16 deg", nil}, {"11 angles over +/-8 deg", stepIdx(5, 15, 1)}} {
+		t.Run(tc.name, func(t *testing.T) {
+			t.Parallel()
+			byDepthFat(t, tc.events)
+		})
+	}
+}
+
+func byDepthFat(t *testing.T, events []int) {
 	a, ch := fatCase(t)
 	// Five 5 mm windows from 6 mm at 1540 m/s: the echoes of the fat reach
 	// 12 * 1540 / 1450 = 12.7 mm there, so the first window lies wholly in the
 	// fat and the last three wholly below it.
 	r := Region{X0: -5e-3, X1: 5e-3, Z0: 6e-3, Z1: 31e-3}
-	res, err := ByDepth(a, ch, DepthConfig{SweepConfig: SweepConfig{Region: &r, Seed: 1}})
+	res, err := ByDepth(a, ch, DepthConfig{SweepConfig: SweepConfig{Region: &r, Events: events, Seed: 1}})
 	if err != nil {
 		t.Fatal(err)
+	}
+	if res.Criterion != TransmitCoherence.String() {
+		t.Errorf("criterion %s, want the default on plane waves, %s", res.Criterion, TransmitCoherence)
 	}
 	for _, w := range res.Windows {
 		t.Logf("window %4.1f-%4.1f mm: average %.1f m/s (%.1f..%.1f)", w.TopM*1e3, w.BottomM*1e3, w.SpeedMPS, w.CI95MPS[0], w.CI95MPS[1])

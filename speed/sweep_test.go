@@ -200,6 +200,74 @@ func TestSweepSinglePlaneWave(t *testing.T) {
 	}
 }
 
+// TestDefaultCriterionFor: the transmit coherence for three or more plane or
+// diverging waves, the coherence factor for anything else.
+func TestDefaultCriterionFor(t *testing.T) {
+	t.Parallel()
+	p, err := sim.Preset("linear-128")
+	if err != nil {
+		t.Fatal(err)
+	}
+	pw := &acq.Acquisition{Probe: p, AssumedSpeedMPS: 1540, Events: acq.PlaneWaveSequence(&p, acq.SpreadAngles(11, 8), 1540)}
+	dw := &acq.Acquisition{Probe: p, AssumedSpeedMPS: 1540,
+		Events: acq.DivergingSequence(&p, [][2]float64{{-5e-3, -10e-3}, {0, -10e-3}, {5e-3, -10e-3}}, 1540)}
+	sa := &acq.Acquisition{Probe: p, AssumedSpeedMPS: 1540, Events: acq.SyntheticApertureSequence(&p)}
+	cases := []struct {
+		name   string
+		a      *acq.Acquisition
+		events []int
+		want   Criterion
+	}{
+		{"11 plane waves", pw, nil, TransmitCoherence},
+		{"3 of them", pw, []int{0, 5, 10}, TransmitCoherence},
+		{"2 of them", pw, []int{0, 10}, CoherenceFactor},
+		{"1 of them", pw, []int{5}, CoherenceFactor},
+		{"3 diverging waves", dw, nil, TransmitCoherence},
+		{"synthetic aperture", sa, nil, CoherenceFactor},
+		{"synthetic aperture subset", sa, EvenEvents(128, MaxEvents), CoherenceFactor},
+	}
+	for _, tc := range cases {
+		if got := DefaultCriterionFor(tc.a, tc.events); got != tc.want {
+			t.Errorf("%s: %s, want %s", tc.name, got, tc.want)
+		}
+	}
+}
+
+// TestSweepTransmitCoherenceNearField: 11 plane waves over +/-8 degrees in
+// the near field (a region at 5-10 mm, where the aperture at F/1 spans 17-33
+// elements). The receive-element coherence factor reads such windows
+// 7-15 m/s high (docs/validation.md); the default criterion on plane waves,
+// the coherence across the events' images, must stay within
+// maxErrNearField.
+func TestSweepTransmitCoherenceNearField(t *testing.T) {
+	t.Parallel()
+	// maxErrNearField: the 5 m/s for 5 compounded angles; the 3 m/s
+	// for 11 angles is set for regions beyond the near field.
+	const truth, maxErrNearField = 1490.0, 5.0
+	p, err := sim.Preset("linear-128")
+	if err != nil {
+		t.Fatal(err)
+	}
+	a, ch, err := speckleSim{medium: sim.Homogeneous(truth), events: acq.PlaneWaveSequence(&p, acq.SpreadAngles(11, 8), 1540),
+		speckle: sim.Region{X0: -8e-3, X1: 8e-3, Z0: 3e-3, Z1: 13e-3}, depthM: 14e-3, snrDB: 20, seed: 11}.run()
+	if err != nil {
+		t.Fatal(err)
+	}
+	r := Region{X0: -5e-3, X1: 5e-3, Z0: 5e-3, Z1: 10e-3}
+	res, err := Sweep(a, ch, SweepConfig{Region: &r, Seed: 1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	e := res.SpeedMPS - truth
+	t.Logf("%s: estimate %.2f m/s (error %+.2f), interval %.1f..%.1f, %s", res.Criterion, res.SpeedMPS, e, res.CI95MPS[0], res.CI95MPS[1], res.Confidence)
+	if res.Criterion != TransmitCoherence.String() {
+		t.Errorf("criterion %s, want %s", res.Criterion, TransmitCoherence)
+	}
+	if math.Abs(e) > maxErrNearField {
+		t.Errorf("error %+.2f m/s, want at most %g", e, maxErrNearField)
+	}
+}
+
 // TestSweepRangeExcludesTruth: when the search range stops short of the true
 // speed the criterion peaks at the edge; the estimate must say so.
 func TestSweepRangeExcludesTruth(t *testing.T) {
@@ -291,6 +359,7 @@ func TestSweepConfigErrors(t *testing.T) {
 		{"too many speeds", SweepConfig{Region: &ok, CoarseStepMPS: 0.01, FineStepMPS: 0.01}, "too many"},
 		{"unknown criterion", SweepConfig{Region: &ok, Criterion: Criterion(42)}, "criterion"},
 		{"event out of range", SweepConfig{Region: &ok, Events: []int{3}}, "event"},
+		{"transmit coherence of one event", SweepConfig{Region: &ok, Criterion: TransmitCoherence}, "three or more events"},
 		// far below the end of the record: nothing to focus on
 		{"no echoes", SweepConfig{Region: region(Region{X0: -1e-3, X1: 1e-3, Z0: 0.2, Z1: 0.21})}, "undefined"},
 	}

@@ -228,6 +228,7 @@ func TestValidationTable(t *testing.T) {
 	// Row order of the table.
 	const (
 		cf    = "coherence-factor"
+		tx    = "transmit-coherence"
 		pw5   = "5 plane waves, +/-8 deg"
 		pw11  = "11 plane waves, +/-8 deg"
 		pw21  = "21 plane waves, +/-16 deg"
@@ -236,12 +237,15 @@ func TestValidationTable(t *testing.T) {
 		saC5  = "synthetic aperture, 5 central transmitters"
 		pw1   = "1 plane wave (0 deg)"
 	)
-	vt.row(pw5, cf, "max 5 m/s, coverage >= 90 %", accuracy(5))
-	vt.row(pw11, cf, "max 3 m/s, coverage >= 90 %", accuracy(3))
-	vt.row(pw21, cf, "max 3 m/s, coverage >= 90 %", accuracy(3))
+	// The default criterion: transmit coherence on compounded plane waves,
+	// the coherence factor on synthetic aperture and a single wave.
+	vt.row(pw5, tx, "max 5 m/s, coverage >= 90 %", accuracy(5))
+	vt.row(pw11, tx, "max 3 m/s, coverage >= 90 %", accuracy(3))
+	vt.row(pw21, tx, "max 3 m/s, coverage >= 90 %", accuracy(3))
 	vt.row(sa, cf, "max 3 m/s, coverage >= 90 %", accuracy(3))
 	vt.row(pw1, cf, "within 10 m/s or low confidence", withinOrLow(10))
-	compare := []Criterion{LagOneCoherence, ShortLagCoherence, Brightness}
+	vt.row(pw5, cf, "", nil)
+	compare := []Criterion{CoherenceFactor, LagOneCoherence, ShortLagCoherence, Brightness}
 	for _, c := range compare {
 		vt.row(pw11, c.String(), "", nil)
 	}
@@ -259,6 +263,9 @@ func TestValidationTable(t *testing.T) {
 		if err != nil {
 			t.Errorf("%s at %g m/s: %v", row.name, truth, err)
 			return
+		}
+		if res.Criterion != row.criterion {
+			t.Errorf("%s: the sweep used %s, the row says %s", row.name, res.Criterion, row.criterion)
 		}
 		tr := valTrial{truth: truth, est: res.SpeedMPS, ci: res.CI95MPS, high: res.Confidence == High, seconds: time.Since(s).Seconds()}
 		row.trials = append(row.trials, tr)
@@ -286,10 +293,11 @@ func TestValidationTable(t *testing.T) {
 			t.Logf("seed %d, homogeneous %g m/s", seed, c)
 			a, ch := simulate(speckleSim{medium: sim.Homogeneous(c), events: acq.PlaneWaveSequence(&p, val41, 1540),
 				speckle: valSpeckle, depthM: 30e-3, snrDB: 20, seed: 100*seed + uint64(c)})
-			estimate(vt.row(pw5, cf, "", nil), pw5, a, ch, c, SweepConfig{Events: val5x8, Seed: seed})
-			estimate(vt.row(pw11, cf, "", nil), pw11, a, ch, c, SweepConfig{Events: val11x8, Seed: seed})
-			estimate(vt.row(pw21, cf, "", nil), pw21, a, ch, c, SweepConfig{Events: val21x16, Seed: seed})
+			estimate(vt.row(pw5, tx, "", nil), pw5, a, ch, c, SweepConfig{Events: val5x8, Seed: seed})
+			estimate(vt.row(pw11, tx, "", nil), pw11, a, ch, c, SweepConfig{Events: val11x8, Seed: seed})
+			estimate(vt.row(pw21, tx, "", nil), pw21, a, ch, c, SweepConfig{Events: val21x16, Seed: seed})
 			estimate(vt.row(pw1, cf, "", nil), "", a, ch, c, SweepConfig{Events: val1, Seed: seed})
+			estimate(vt.row(pw5, cf, "", nil), "", a, ch, c, SweepConfig{Events: val5x8, Criterion: CoherenceFactor, Seed: seed})
 			for _, crit := range compare {
 				estimate(vt.row(pw11, crit.String(), "", nil), "", a, ch, c, SweepConfig{Events: val11x8, Criterion: crit, Seed: seed})
 			}
@@ -307,8 +315,9 @@ func TestValidationTable(t *testing.T) {
 	// 2.5 mm correlation length (Hinkelman, Szabo & Waag, JASA 1997;
 	// CHECKS.md), 11 plane waves over +/-8 degrees (and, informative, 21 over
 	// +/-16), the sweep alone (no aberration correction).
-	screenRow := vt.row("chest-wall screen 21 ns / 2.5 mm, 11 plane waves, +/-8 deg", cf, "max 10 m/s", errorOnly(10))
-	screenRow21 := vt.row("chest-wall screen 21 ns / 2.5 mm, 21 plane waves, +/-16 deg", cf, "", nil)
+	screenRow := vt.row("chest-wall screen 21 ns / 2.5 mm, 11 plane waves, +/-8 deg", tx, "max 10 m/s", errorOnly(10))
+	screenRow21 := vt.row("chest-wall screen 21 ns / 2.5 mm, 21 plane waves, +/-16 deg", tx, "", nil)
+	screenRowCF := vt.row("chest-wall screen 21 ns / 2.5 mm, 11 plane waves, +/-8 deg", cf, "", nil)
 	for seed := uint64(1); seed <= uint64(seeds); seed++ {
 		for _, c := range speeds {
 			els := p.Elements()
@@ -325,31 +334,41 @@ func TestValidationTable(t *testing.T) {
 				speckle: valSpeckle, depthM: 30e-3, snrDB: 20, screen: scr, seed: 200*seed + uint64(c)})
 			estimate(screenRow, "", a, ch, c, SweepConfig{Events: val11x8, Seed: seed})
 			estimate(screenRow21, "", a, ch, c, SweepConfig{Events: val21x16, Seed: seed})
+			estimate(screenRowCF, "", a, ch, c, SweepConfig{Events: val11x8, Criterion: CoherenceFactor, Seed: seed})
 		}
 	}
 	// A fat-like layer: 15 mm at 1450 m/s over 1570 m/s, by depth, with two
 	// compounded plane-wave sequences; region as in TestByDepthFatLayer.
 	type layerRows struct{ top, bottom *valRow }
 	fatRows := map[string]layerRows{}
+	fatCF := pw11 + ", " + cf
 	for _, seq := range []string{pw11, pw21} {
 		fatRows[seq] = layerRows{
-			vt.row("fat 15 mm 1450 over 1570, "+seq+": shallowest layer", cf, "within 15 m/s", errorOnly(15)),
-			vt.row("fat 15 mm 1450 over 1570, "+seq+": deepest layer", cf, "within 15 m/s", errorOnly(15)),
+			vt.row("fat 15 mm 1450 over 1570, "+seq+": shallowest layer", tx, "within 15 m/s", errorOnly(15)),
+			vt.row("fat 15 mm 1450 over 1570, "+seq+": deepest layer", tx, "within 15 m/s", errorOnly(15)),
 		}
+	}
+	fatRows[fatCF] = layerRows{
+		vt.row("fat 15 mm 1450 over 1570, "+pw11+": shallowest layer", cf, "", nil),
+		vt.row("fat 15 mm 1450 over 1570, "+pw11+": deepest layer", cf, "", nil),
 	}
 	for seed := uint64(1); seed <= uint64(seeds); seed++ {
 		t.Logf("seed %d, fat layer", seed)
 		a, ch := simulate(speckleSim{medium: sim.Layered(acq.Layer{SpeedMPS: 1450, ThicknessM: 15e-3}, acq.Layer{SpeedMPS: 1570}),
 			events: acq.PlaneWaveSequence(&p, val41, 1540), speckle: sim.Region{X0: -8e-3, X1: 8e-3, Z0: 3e-3, Z1: 32e-3},
 			depthM: 33e-3, snrDB: 20, seed: 300 * seed})
-		for _, seq := range []string{pw11, pw21} {
+		for _, seq := range []string{pw11, pw21, fatCF} {
 			evs := val11x8
 			if seq == pw21 {
 				evs = val21x16
 			}
+			var crit Criterion
+			if seq == fatCF {
+				crit = CoherenceFactor
+			}
 			r := Region{X0: -5e-3, X1: 5e-3, Z0: 6e-3, Z1: 31e-3}
 			s := time.Now()
-			res, err := ByDepth(a, ch, DepthConfig{SweepConfig: SweepConfig{Region: &r, Events: evs, Seed: seed}})
+			res, err := ByDepth(a, ch, DepthConfig{SweepConfig: SweepConfig{Region: &r, Events: evs, Criterion: crit, Seed: seed}})
 			if err != nil {
 				t.Errorf("fat layer, %s: %v", seq, err)
 				continue
@@ -375,7 +394,9 @@ func TestValidationTable(t *testing.T) {
 		t.Fatal(err)
 	}
 	waterRow := vt.row(fmt.Sprintf("water at %g C (%.2f m/s, Marczak 1997), wires + sparse speckle, 11 plane waves", waterC, want),
-		cf, "max 3 m/s", errorOnly(3))
+		tx, "max 3 m/s", errorOnly(3))
+	waterRowCF := vt.row(fmt.Sprintf("water at %g C (%.2f m/s, Marczak 1997), wires + sparse speckle, 11 plane waves", waterC, want),
+		cf, "", nil)
 	for seed := uint64(1); seed <= uint64(seeds); seed++ {
 		sc, err := sim.ParseScenario("water.yaml", []byte(fmt.Sprintf(valWaterYAML, seed, waterC)))
 		if err != nil {
@@ -396,6 +417,7 @@ func TestValidationTable(t *testing.T) {
 		}
 		t.Logf("seed %d, water: simulated in %.1f s", seed, time.Since(st).Seconds())
 		estimate(waterRow, "", a, ch, want, SweepConfig{Seed: seed})
+		estimate(waterRowCF, "", a, ch, want, SweepConfig{Criterion: CoherenceFactor, Seed: seed})
 	}
 	// The near field: the same homogeneous speckle from 2 mm, windows 5 mm
 	// deep at increasing depth (informative: the automatic region starts at
@@ -413,7 +435,8 @@ func TestValidationTable(t *testing.T) {
 			for _, z0 := range []float64{4e-3, 7e-3, 10e-3, 13e-3, 16e-3, 19e-3} {
 				r := Region{X0: -5e-3, X1: 5e-3, Z0: z0, Z1: z0 + 5e-3}
 				name := fmt.Sprintf("near field, %s, region %.0f-%.0f mm", seq, z0*1e3, (z0+5e-3)*1e3)
-				estimate(vt.row(name, cf, "", nil), "", a, ch, c, SweepConfig{Events: evs, Region: &r, Seed: seed})
+				estimate(vt.row(name, tx, "", nil), "", a, ch, c, SweepConfig{Events: evs, Region: &r, Seed: seed})
+				estimate(vt.row(name, cf, "", nil), "", a, ch, c, SweepConfig{Events: evs, Region: &r, Criterion: CoherenceFactor, Seed: seed})
 			}
 		}
 	}
