@@ -125,8 +125,8 @@ func ByDepth(a *acq.Acquisition, ch *recon.Channels, cfg DepthConfig) (*DepthRes
 		r.Z0 = math.Max(math.Max(5e-3, 2*sc.FNumber*16*p.MeanPitch()), sc.RefSpeedMPS*a.StartTimeS/2+10*sc.RefSpeedMPS/p.CenterFrequencyHz)
 		region = r
 		res.Notes = append(res.Notes, notes...)
-		if near := 0.4 * p.Aperture(); r.Z0 < near && planeWaves(a, sc.Events) {
-			res.Notes = append(res.Notes, fmt.Sprintf("the shallowest windows start at %.1f mm, above 0.4 times the array length (%.1f mm), where focus criteria on compounded plane waves read high, the more so the narrower the span of angles (docs/validation.md)", r.Z0*1e3, near*1e3))
+		if near := 0.4 * p.Aperture(); r.Z0 < near && planeWaves(a, sc.Events) && sc.Criterion != TransmitCoherence {
+			res.Notes = append(res.Notes, fmt.Sprintf("the shallowest windows start at %.1f mm, above 0.4 times the array length (%.1f mm), where receive-element focus criteria on plane waves read high, the more so the narrower the span of angles (docs/validation.md)", r.Z0*1e3, near*1e3))
 		}
 	}
 	res.Region = region

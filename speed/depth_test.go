@@ -212,8 +212,9 @@ func byDepthFat(t *testing.T, events []int) {
 
 // TestByDepthAutoRegionNote: the automatic depth region starts where the
 // aperture holds 16 elements (9.6 mm here), shallower than the 0.4 array
-// lengths (15.2 mm) below which focus criteria on compounded plane waves
-// read high; the result must say so. A coarse, cheap sweep suffices.
+// lengths (15.2 mm) below which receive-element focus criteria on plane
+// waves read high; the result must say so when it uses one (here on a single
+// wave). A coarse, cheap sweep suffices.
 func TestByDepthAutoRegionNote(t *testing.T) {
 	t.Parallel()
 	a, ch := fatCase(t)
@@ -227,6 +228,15 @@ func TestByDepthAutoRegionNote(t *testing.T) {
 	}
 	if !hasNote(res.Notes, "0.4 times the array length") {
 		t.Errorf("no note about the shallow windows: %q", res.Notes)
+	}
+	// the transmit coherence, the default on several plane waves, does not
+	// read high there: no note
+	res, err = ByDepth(a, ch, DepthConfig{SweepConfig: SweepConfig{Events: stepIdx(5, 15, 1), CoarseStepMPS: 50, FineStepMPS: 50, Bootstrap: 4, Seed: 1}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if hasNote(res.Notes, "0.4 times the array length") {
+		t.Errorf("note about the shallow windows with the transmit coherence: %q", res.Notes)
 	}
 }
 
