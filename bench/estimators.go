@@ -158,16 +158,18 @@ func fromSpeed(r *speed.Result) *Estimate {
 	return est
 }
 
-// awareEstimator is the speed command's default sweep: the coherence-factor
-// sweep, a check for a near-field aberrator and, when one is found, the
-// speed re-estimated with its profile (correction.EstimateSpeed).
+// awareEstimator is the speed command's default sweep: the sweep with the
+// default criterion for the sequence (transmit coherence on three or more
+// plane or diverging waves, else the coherence factor), a check for a
+// near-field aberrator and, when one is found, the speed re-estimated with
+// its profile (correction.EstimateSpeed).
 type awareEstimator struct{}
 
 func (awareEstimator) Name() string       { return SpeedAberrationAware }
 func (awareEstimator) NeedsTargets() bool { return false }
 
 func (awareEstimator) Estimate(_ context.Context, in *Input) (*Estimate, error) {
-	r, _, err := correction.EstimateSpeed(in.Acq, in.Channels, sweepConfig(speed.CoherenceFactor))
+	r, _, err := correction.EstimateSpeed(in.Acq, in.Channels, sweepConfig(0))
 	if err != nil {
 		return nil, err
 	}

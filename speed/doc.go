@@ -17,7 +17,12 @@
 // receive aperture (van Cittert-Zernike: the coherence length is set by the
 // width of the insonified region), so receive-only criteria carry little
 // information there; transmit focusing synthesised by compounding steered
-// plane waves or by synthetic aperture restores it.
+// plane waves or by synthetic aperture restores it. On compounded plane
+// waves the receive-element criteria still lean towards high speeds, the
+// more so near the array, because the partial coherence of diffuse echoes
+// across the receive elements depends on the receive geometry; the coherence
+// of the separate events' images (TransmitCoherence, the default there) does
+// not.
 //
 // References:
 //   - Mallart R, Fink M. Adaptive focusing in scattering media through
