@@ -63,17 +63,19 @@ type Config struct {
 	Workers int
 }
 
-// tileSize returns the number of pixels per tile: a run of pixels down a
-// column, so that one element's samples are read in order. The vector
-// kernel gains from long runs (256: about 1.2 times the throughput of 64 in
-// BenchmarkForm); the scalar loop and its element pairs do best at 64. The
-// size does not change any sum: each pixel adds its events and elements in
-// the same order whatever the tiling.
-func tileSize() int {
+// tileShape returns the rows and columns of a tile: the pixels of a block,
+// column by column, each column's rows in order down the column, so that one
+// element's samples are read in order. The vector kernel gains from long
+// runs and from several neighbouring columns per tile, which read nearly the
+// same stretch of every channel while it is in cache; the scalar loop and
+// its element pairs do best at 64 x 1. The shape does not change any sum:
+// each pixel adds its events and elements in the same order whatever the
+// tiling.
+func tileShape() (rows, cols int) {
 	if haveVector {
-		return 256
+		return 64, 4
 	}
-	return 64
+	return 64, 1
 }
 
 type tile struct {
@@ -173,23 +175,18 @@ func (bf *Beamformer) makeTiles() {
 	// Tiles at the same depth in neighbouring columns read nearly the same
 	// stretch of every channel, so they are made (and run) one after the
 	// other, while those samples are still in cache.
-	tileSize := tileSize()
-	for r0 := 0; r0 < g.Rows; r0 += tileSize {
-		for c := 0; c < g.Cols; c++ {
-			t := tile{}
-			for r := r0; r < min(r0+tileSize, g.Rows); r++ {
-				t.pix = append(t.pix, int32(r*g.Cols+c))
-			}
-			bf.tiles = append(bf.tiles, t)
-		}
-	}
+	tr, tc := tileShape()
 	if g.Rows == 1 {
 		// a single row of points: tile along the row instead
-		bf.tiles = bf.tiles[:0]
-		for c0 := 0; c0 < g.Cols; c0 += tileSize {
+		tr, tc = 1, tr*tc
+	}
+	for r0 := 0; r0 < g.Rows; r0 += tr {
+		for c0 := 0; c0 < g.Cols; c0 += tc {
 			t := tile{}
-			for c := c0; c < min(c0+tileSize, g.Cols); c++ {
-				t.pix = append(t.pix, int32(c))
+			for c := c0; c < min(c0+tc, g.Cols); c++ {
+				for r := r0; r < min(r0+tr, g.Rows); r++ {
+					t.pix = append(t.pix, int32(r*g.Cols+c))
+				}
 			}
 			bf.tiles = append(bf.tiles, t)
 		}
