@@ -386,7 +386,13 @@ func depositOne(acc *accumulator, T float32, a complex64, tau []float32, ph []co
 func depositFast(row []complex64, gT []float32, gA []complex64, base float32, pj complex64) {
 	gA = gA[:len(gT)]
 	pr, pi := real(pj), imag(pj)
-	for g, T := range gT {
+	g0 := 0
+	if haveVector && len(gT) >= 4 {
+		g0 = len(gT) &^ 3
+		depositVector(&row[0], &gT[0], &gA[0], g0, base, pj)
+	}
+	for g := g0; g < len(gT); g++ {
+		T := gT[g]
 		t := T + base
 		k := int(t)
 		f := t - float32(k)
