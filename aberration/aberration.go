@@ -93,6 +93,12 @@ type Config struct {
 	Workers int
 	// Progress, if not nil, is called after each iteration.
 	Progress func(done, total int)
+	// KeepCurvature leaves the quadratic part of the profile as the
+	// element-by-element estimate gives it. By default, on three or more
+	// plane or diverging waves, it is set afterwards by the coherence of the
+	// events' images (curvature.go), which those estimates leave poorly
+	// determined behind sparse compounding.
+	KeepCurvature bool
 }
 
 // Quality holds coherence measures of the aperture data of the patches.
@@ -145,11 +151,14 @@ type Result struct {
 	// Disagreement is the rms of the patches' disagreements over the rms of
 	// the profile; large values (above about 0.5) mean the errors are not the
 	// same everywhere (not isoplanatic).
-	Disagreement float64  `json:"disagreement"`
-	Isoplanatic  bool     `json:"isoplanatic"`
-	Before       Quality  `json:"coherence_before"`
-	After        Quality  `json:"coherence_after"`
-	Notes        []string `json:"notes,omitempty"`
+	Disagreement float64 `json:"disagreement"`
+	Isoplanatic  bool    `json:"isoplanatic"`
+	// CurvatureFromEvents says that the quadratic part of the profile was
+	// set by the coherence of the events' images (see Config.KeepCurvature).
+	CurvatureFromEvents bool     `json:"curvature_from_events"`
+	Before              Quality  `json:"coherence_before"`
+	After               Quality  `json:"coherence_after"`
+	Notes               []string `json:"notes,omitempty"`
 	// RawS is the estimate before mean and trend removal.
 	RawS []float64 `json:"raw_s"`
 }
@@ -406,6 +415,19 @@ func Estimate(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Result, erro
 		change = math.Sqrt(change / float64(nn))
 		if change < cfg.TolS && it > 0 {
 			break
+		}
+	}
+	if !cfg.KeepCurvature && compoundedWaves(a, cfg.Events) {
+		refined, changed, err := refineCurvature(a, ch, &cfg, pds, prof, x, omega)
+		if err != nil {
+			return nil, err
+		}
+		if changed {
+			copy(prof, refined)
+			if err := gather(prof); err != nil {
+				return nil, err
+			}
+			res.CurvatureFromEvents = true
 		}
 	}
 	// per-patch profiles of the remaining residual, on top of the joint one
