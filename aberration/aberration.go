@@ -417,7 +417,7 @@ func Estimate(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Result, erro
 			break
 		}
 	}
-	if !cfg.KeepCurvature && compoundedWaves(a, cfg.Events) {
+	if !cfg.KeepCurvature && acq.CompoundedWaves(a, cfg.Events) {
 		refined, changed, err := refineCurvature(a, ch, &cfg, pds, prof, x, omega)
 		if err != nil {
 			return nil, err

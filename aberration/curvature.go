@@ -30,28 +30,6 @@ const (
 	curvatureSpan  = 0.5
 )
 
-// compoundedWaves reports whether the events used are three or more plane
-// or diverging waves.
-func compoundedWaves(a *acq.Acquisition, events []int) bool {
-	if events == nil {
-		events = make([]int, a.NumEvents())
-		for i := range events {
-			events[i] = i
-		}
-	}
-	if len(events) < 3 {
-		return false
-	}
-	els := a.Probe.Elements()
-	for _, e := range events {
-		w := acq.DeriveWavefront(els, &a.Events[e], a.AssumedSpeedMPS, 0, a.Probe.CenterFrequencyHz)
-		if w.Kind != acq.KindPlaneWave && w.Kind != acq.KindDiverging {
-			return false
-		}
-	}
-	return true
-}
-
 // transmitCoherence returns sum_p |sum_e I_pe|^2 / (E sum_p sum_e |I_pe|^2)
 // over the points (xs, zs) for the delay model m.
 func transmitCoherence(a *acq.Acquisition, ch *recon.Channels, m recon.DelayModel, cfg *Config, g *recon.Grid) (float64, error) {

@@ -458,3 +458,31 @@ func Summarize(a *Acquisition) SequenceSummary {
 	sort.Float64s(s.AnglesDeg)
 	return s
 }
+
+// CompoundedWaves reports whether events (indices into a.Events; nil means
+// all) are three or more plane or diverging waves, their wavefronts derived
+// from the firing delays at the scanner's assumed speed: a sequence whose
+// events' images can be compounded coherently, each insonifying the whole
+// field. Indices out of range give false.
+func CompoundedWaves(a *Acquisition, events []int) bool {
+	if events == nil {
+		events = make([]int, a.NumEvents())
+		for i := range events {
+			events[i] = i
+		}
+	}
+	if len(events) < 3 {
+		return false
+	}
+	els := a.Probe.Elements()
+	for _, e := range events {
+		if e < 0 || e >= a.NumEvents() {
+			return false
+		}
+		w := DeriveWavefront(els, &a.Events[e], a.AssumedSpeedMPS, 0, a.Probe.CenterFrequencyHz)
+		if w.Kind != KindPlaneWave && w.Kind != KindDiverging {
+			return false
+		}
+	}
+	return true
+}

@@ -319,3 +319,35 @@ func TestStrings(t *testing.T) {
 		}
 	}
 }
+
+// TestCompoundedWaves: three or more plane or diverging waves; not fewer,
+// not synthetic aperture or focused beams, not an index out of range.
+func TestCompoundedWaves(t *testing.T) {
+	t.Parallel()
+	p := acq.NewLinear(64, 0.3e-3, 5e6)
+	mk := func(evs []acq.Event) *acq.Acquisition {
+		return &acq.Acquisition{Probe: p, AssumedSpeedMPS: 1540, Events: evs}
+	}
+	pw := mk(acq.PlaneWaveSequence(&p, acq.SpreadAngles(5, 8), 1540))
+	dw := mk(acq.DivergingSequence(&p, [][2]float64{{-3e-3, -8e-3}, {0, -8e-3}, {3e-3, -8e-3}}, 1540))
+	sa := mk(acq.SyntheticApertureSequence(&p))
+	fb := mk(acq.FocusedSequence(&p, []float64{-2e-3, 0, 2e-3}, 20e-3, 2, 1540))
+	for _, tc := range []struct {
+		name   string
+		a      *acq.Acquisition
+		events []int
+		want   bool
+	}{
+		{"5 plane waves", pw, nil, true},
+		{"3 of them", pw, []int{0, 2, 4}, true},
+		{"2 of them", pw, []int{0, 4}, false},
+		{"index out of range", pw, []int{0, 2, 5}, false},
+		{"3 diverging waves", dw, nil, true},
+		{"synthetic aperture", sa, nil, false},
+		{"focused beams", fb, nil, false},
+	} {
+		if got := acq.CompoundedWaves(tc.a, tc.events); got != tc.want {
+			t.Errorf("%s: %v, want %v", tc.name, got, tc.want)
+		}
+	}
+}

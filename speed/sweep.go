@@ -82,26 +82,10 @@ const MaxPixels = 12000
 // the narrower the span of angles, and the transmit coherence does not;
 // docs/validation.md has the comparison that chose them.
 func DefaultCriterionFor(a *acq.Acquisition, events []int) Criterion {
-	if events == nil {
-		events = make([]int, a.NumEvents())
-		for i := range events {
-			events[i] = i
-		}
+	if acq.CompoundedWaves(a, events) {
+		return TransmitCoherence
 	}
-	if len(events) < 3 {
-		return CoherenceFactor
-	}
-	els := a.Probe.Elements()
-	for _, e := range events {
-		if e < 0 || e >= a.NumEvents() {
-			return CoherenceFactor
-		}
-		w := acq.DeriveWavefront(els, &a.Events[e], a.AssumedSpeedMPS, 0, a.Probe.CenterFrequencyHz)
-		if w.Kind != acq.KindPlaneWave && w.Kind != acq.KindDiverging {
-			return CoherenceFactor
-		}
-	}
-	return TransmitCoherence
+	return CoherenceFactor
 }
 
 // Point is one evaluated speed.
