@@ -166,6 +166,9 @@ func (c *AberrationCmd) Run(g *Globals) error {
 	}
 	fmt.Fprintf(g.stdout, "profile         %.1f ns rms over %d elements (%s, %d iterations)\n", res.RMSS*1e9, len(res.ProfileS), res.Method, res.Iterations)
 	fmt.Fprintf(g.stdout, "removed         mean %.1f ns, trend %.3g ns/mm\n", res.MeanS*1e9, res.TrendSPerM*1e9/1e3)
+	if res.CurvatureFromEvents {
+		fmt.Fprintf(g.stdout, "curvature       set by the coherence of the events' images\n")
+	}
 	fmt.Fprintf(g.stdout, "coherence       lag-one %.3f -> %.3f, coherence factor %.3f -> %.3f\n", res.Before.LagOneCoherence, res.After.LagOneCoherence, res.Before.CoherenceFactor, res.After.CoherenceFactor)
 	fmt.Fprintf(g.stdout, "patches         %d, disagreement %.0f %% of the profile rms (isoplanatic: %v)\n", len(res.Patches), 100*res.Disagreement, res.Isoplanatic)
 	if out.TruthErrRMSS != nil {
