@@ -314,6 +314,7 @@ func Estimate(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Result, erro
 	res.Before = quality(pds, omega, nn)
 	total := cfg.Iterations
 	bestCF := res.Before.CoherenceFactor
+	anyAccepted := false
 	for it := 0; it < cfg.Iterations; it++ {
 		// Lag one only in the first round: its differences are small enough
 		// not to wrap; later rounds see the residual, small at every lag.
@@ -399,6 +400,7 @@ func Estimate(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Result, erro
 		if cfg.Progress != nil {
 			cfg.Progress(it+1, total)
 		}
+		anyAccepted = anyAccepted || accepted
 		if !accepted {
 			copy(prof, old)
 			restore(pds, saved)
@@ -417,7 +419,10 @@ func Estimate(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Result, erro
 			break
 		}
 	}
-	if !cfg.KeepCurvature && acq.CompoundedWaves(a, cfg.Events) {
+	// The curvature step needs the rest of the profile: where every step
+	// was refused, the best quadratic through an uncorrected screen makes up
+	// for the other errors rather than measuring the screen's own.
+	if !cfg.KeepCurvature && anyAccepted && acq.CompoundedWaves(a, cfg.Events) {
 		refined, changed, err := refineCurvature(a, ch, &cfg, pds, prof, x, omega)
 		if err != nil {
 			return nil, err
