@@ -37,7 +37,9 @@ a profile of arrival-time errors (seconds, positive = later), with its mean and 
 removed and reported apart (a time shift and a steering are not focusing errors). The bulk
 model comes from --speed-mps or --layers; without either, the speed is estimated first by the
 focus sweep. Each patch gives its own profile; their disagreement says whether the errors are
-the same across the field (isoplanatic).
+the same across the field (isoplanatic). On three or more plane or diverging waves the
+profile's curvature, which the element-by-element estimate leaves poorly determined, is then
+set by the coherence of the events' images.
 
 The correction applies on receive and, for each firing element, on transmit: exactly for
 synthetic-aperture data, and for plane and diverging waves through the element whose wavelet
