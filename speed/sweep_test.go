@@ -200,8 +200,8 @@ func TestSweepSinglePlaneWave(t *testing.T) {
 	}
 }
 
-// TestDefaultCriterionFor: the transmit coherence for three or more plane or
-// diverging waves, the coherence factor for anything else.
+// TestDefaultCriterionFor: the transmit coherence where acq.CompoundedWaves
+// holds (its own test covers the rule), the coherence factor otherwise.
 func TestDefaultCriterionFor(t *testing.T) {
 	t.Parallel()
 	p, err := sim.Preset("linear-128")
@@ -209,27 +209,15 @@ func TestDefaultCriterionFor(t *testing.T) {
 		t.Fatal(err)
 	}
 	pw := &acq.Acquisition{Probe: p, AssumedSpeedMPS: 1540, Events: acq.PlaneWaveSequence(&p, acq.SpreadAngles(11, 8), 1540)}
-	dw := &acq.Acquisition{Probe: p, AssumedSpeedMPS: 1540,
-		Events: acq.DivergingSequence(&p, [][2]float64{{-5e-3, -10e-3}, {0, -10e-3}, {5e-3, -10e-3}}, 1540)}
 	sa := &acq.Acquisition{Probe: p, AssumedSpeedMPS: 1540, Events: acq.SyntheticApertureSequence(&p)}
-	cases := []struct {
-		name   string
-		a      *acq.Acquisition
-		events []int
-		want   Criterion
-	}{
-		{"11 plane waves", pw, nil, TransmitCoherence},
-		{"3 of them", pw, []int{0, 5, 10}, TransmitCoherence},
-		{"2 of them", pw, []int{0, 10}, CoherenceFactor},
-		{"1 of them", pw, []int{5}, CoherenceFactor},
-		{"3 diverging waves", dw, nil, TransmitCoherence},
-		{"synthetic aperture", sa, nil, CoherenceFactor},
-		{"synthetic aperture subset", sa, EvenEvents(128, MaxEvents), CoherenceFactor},
+	if c := DefaultCriterionFor(pw, nil); c != TransmitCoherence {
+		t.Errorf("11 plane waves: %s, want %s", c, TransmitCoherence)
 	}
-	for _, tc := range cases {
-		if got := DefaultCriterionFor(tc.a, tc.events); got != tc.want {
-			t.Errorf("%s: %s, want %s", tc.name, got, tc.want)
-		}
+	if c := DefaultCriterionFor(pw, []int{5}); c != CoherenceFactor {
+		t.Errorf("one plane wave: %s, want %s", c, CoherenceFactor)
+	}
+	if c := DefaultCriterionFor(sa, EvenEvents(128, MaxEvents)); c != CoherenceFactor {
+		t.Errorf("synthetic aperture: %s, want %s", c, CoherenceFactor)
 	}
 }
 
