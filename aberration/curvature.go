@@ -31,40 +31,32 @@ const (
 )
 
 // transmitCoherence returns sum_p |sum_e I_pe|^2 / (E sum_p sum_e |I_pe|^2)
-// over the points (xs, zs) for the delay model m.
+// over the pixels of g for the delay model m.
 func transmitCoherence(a *acq.Acquisition, ch *recon.Channels, m recon.DelayModel, cfg *Config, g *recon.Grid) (float64, error) {
 	bf, err := recon.NewBeamformer(a, g, m, recon.Config{FNumber: cfg.FNumber, Window: dsp.Window{Kind: dsp.Boxcar},
 		Events: cfg.Events, Workers: cfg.Workers})
 	if err != nil {
 		return 0, err
 	}
-	np := g.Len()
-	sum := make([]complex128, np)
-	var inc float64
-	img := make([]complex64, np)
-	ne := len(bf.Events())
-	for i := range ne {
-		if img, err = bf.FormEvents(img, ch, []int{i}); err != nil {
-			return 0, err
-		}
-		for p, v := range img {
-			sum[p] += complex128(v)
-			inc += float64(real(v))*float64(real(v)) + float64(imag(v))*float64(imag(v))
-		}
+	sum, power, err := bf.EventSums(ch)
+	if err != nil {
+		return 0, err
 	}
-	var coh float64
-	for _, v := range sum {
+	var coh, inc float64
+	for p, v := range sum {
 		coh += real(v)*real(v) + imag(v)*imag(v)
+		inc += power[p]
 	}
 	if inc == 0 {
 		return math.NaN(), nil
 	}
+	ne := len(bf.Events())
 	return coh / (float64(ne) * inc), nil
 }
 
-// refineCurvature returns prof with its quadratic coefficient (least
-// squares over the element positions x) replaced by the one that maximises
-// the transmit coherence over the patches' pixels, and whether it changed
+// refineCurvature returns prof plus the quadratic d (x - xc)^2 / half^2
+// (xc the array's centre, half its half-length) whose d maximises the
+// transmit coherence over the patches' pixels, and whether it changed it
 // (only when the coherence rises).
 func refineCurvature(a *acq.Acquisition, ch *recon.Channels, cfg *Config, pds []*patchData, prof, x []float64, omega float64) ([]float64, bool, error) {
 	var xs, zs []float64

@@ -376,6 +376,27 @@ func (bf *Beamformer) FormEvents(dst []complex64, ch *Channels, subset []int) ([
 	return dst, nil
 }
 
+// EventSums forms the image of each of the plan's events on its own and
+// returns, for every pixel, their coherent sum sum_e I_e (Form's value, in
+// complex128) and their summed power sum_e |I_e|^2: the ingredients of the
+// coherence across transmit events, |sum_e I_e|^2 / (E sum_e |I_e|^2).
+func (bf *Beamformer) EventSums(ch *Channels) (sum []complex128, power []float64, err error) {
+	np := bf.Grid.Len()
+	sum = make([]complex128, np)
+	power = make([]float64, np)
+	img := make([]complex64, np)
+	for i := range bf.events {
+		if img, err = bf.FormEvents(img, ch, []int{i}); err != nil {
+			return nil, nil, err
+		}
+		for p, v := range img {
+			sum[p] += complex128(v)
+			power[p] += float64(real(v))*float64(real(v)) + float64(imag(v))*float64(imag(v))
+		}
+	}
+	return sum, power, nil
+}
+
 func (bf *Beamformer) subset(s []int) ([]int, error) {
 	if s == nil {
 		out := make([]int, len(bf.events))

@@ -382,6 +382,22 @@ func TestFormEventsSuperposition(t *testing.T) {
 			t.Fatalf("pixel %d: Form %v, FormEvents(all) %v", i, all[i], sub[i])
 		}
 	}
+	// EventSums: the same sum over the events' images, and their summed
+	// power, at least |sum|^2 / E (Cauchy-Schwarz)
+	es, power, err := bf.EventSums(ch)
+	if err != nil {
+		t.Fatal(err)
+	}
+	ne := float64(len(bf.Events()))
+	for i := range all {
+		if d := cabs(complex64(es[i]) - sum[i]); d > rel*peak {
+			t.Fatalf("pixel %d: EventSums %v, sum over events %v", i, es[i], sum[i])
+		}
+		s2 := real(es[i])*real(es[i]) + imag(es[i])*imag(es[i])
+		if power[i] < s2/ne*(1-1e-9) {
+			t.Fatalf("pixel %d: power %g below |sum|^2 / E = %g", i, power[i], s2/ne)
+		}
+	}
 }
 
 // TestFormDeterministic: the image does not depend on the number of

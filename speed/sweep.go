@@ -247,30 +247,20 @@ func (ev *evaluator) run(c float64) ([]sums, error) {
 // transmitSums forms each event's image on its own and pools the
 // transmit-coherence sums per tile.
 func (ev *evaluator) transmitSums(bf *recon.Beamformer) ([]sums, error) {
-	np := len(ev.xs)
-	sum := make([]complex128, np)
-	inc := make([]float64, np)
-	img := make([]complex64, np)
-	ne := len(bf.Events())
-	var err error
-	for i := range ne {
-		if img, err = bf.FormEvents(img, ev.ch, []int{i}); err != nil {
-			return nil, err
-		}
-		for p, v := range img {
-			sum[p] += complex128(v)
-			inc[p] += float64(real(v))*float64(real(v)) + float64(imag(v))*float64(imag(v))
-		}
+	sum, power, err := bf.EventSums(ev.ch)
+	if err != nil {
+		return nil, err
 	}
+	ne := float64(len(bf.Events()))
 	out := make([]sums, ev.nTiles)
 	for t := range out {
 		out[t] = newSums(ev.maxLag)
 	}
-	for p := range np {
+	for p, v := range sum {
 		o := &out[ev.tiles[p]]
-		I := real(sum[p])*real(sum[p]) + imag(sum[p])*imag(sum[p])
+		I := real(v)*real(v) + imag(v)*imag(v)
 		o.txCoh += I
-		o.txInc += float64(ne) * inc[p]
+		o.txInc += ne * power[p]
 		o.i1 += I
 		o.i2 += I * I
 		o.np++
