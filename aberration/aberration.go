@@ -803,6 +803,9 @@ func solveBeamsum(pds []*patchData, nn int, omega, minCov float64) ([]float64, [
 		seen[j] = true
 		out[j] = -math.Atan2(imag(acc), real(acc)) / omega
 	}
+	// phases wrap at half a period: behind a strong screen the first step
+	// needs them unwrapped along the array
+	unwrapAlong(out, seen, 2*math.Pi/omega)
 	mean, n := 0.0, 0
 	for j := range nn {
 		if seen[j] {
@@ -974,3 +977,27 @@ func AutoPatches(a *acq.Acquisition, ch *recon.Channels, c, fnum float64) ([]Pat
 }
 
 var _ = sort.Float64s
+
+// unwrapAlong removes the period jumps of wrapped delays along the array:
+// where the delay of a seen element differs from that of the previous seen
+// one by more than half a period, whole periods are added to it and to all
+// that follow. A screen whose peaks exceed half a period still changes by
+// a small part of one from element to element (tens of ns over its
+// correlation length of several elements, against 200 ns at 5 MHz).
+func unwrapAlong(d []float64, seen []bool, period float64) {
+	prev := math.NaN()
+	shift := 0.0
+	for j := range d {
+		if !seen[j] {
+			continue
+		}
+		v := d[j] + shift
+		if !math.IsNaN(prev) {
+			k := math.Round((v - prev) / period)
+			shift -= k * period
+			v -= k * period
+		}
+		d[j] = v
+		prev = v
+	}
+}
