@@ -1,9 +1,7 @@
 package bench
 
 import (
-	"bytes"
 	"encoding/csv"
-	"encoding/json"
 	"fmt"
 	"io"
 	"math"
@@ -76,10 +74,8 @@ func Collect(s *Suite, m *Manifest, recs []jobs.Record, want []string) (*Results
 			res.Failed = append(res.Failed, CaseFailure{Case: c, Error: r.Error})
 			continue
 		}
-		dec := json.NewDecoder(bytes.NewReader(r.Result))
-		dec.DisallowUnknownFields()
 		var cr CaseResult
-		if err := dec.Decode(&cr); err != nil {
+		if err := jsonx.DecodeStrict(r.Result, &cr); err != nil {
 			return nil, fmt.Errorf("result of case %s: %v", c.ID, err)
 		}
 		if cr.Case != c.ID {

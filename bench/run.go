@@ -1,7 +1,6 @@
 package bench
 
 import (
-	"bytes"
 	"context"
 	"crypto/sha256"
 	"encoding/hex"
@@ -117,10 +116,8 @@ func ReadManifest(dir string) (*Manifest, error) {
 	if err != nil {
 		return nil, err
 	}
-	dec := json.NewDecoder(bytes.NewReader(b))
-	dec.DisallowUnknownFields()
 	var m Manifest
-	if err := dec.Decode(&m); err != nil {
+	if err := jsonx.DecodeStrict(b, &m); err != nil {
 		return nil, fmt.Errorf("%s: not a benchmark manifest: %v", path, err)
 	}
 	if m.Format != manifestV1 {

@@ -1,7 +1,7 @@
 package cohort
 
 import (
-	"bytes"
+	"celerity/internal/jsonx"
 	"context"
 	"encoding/json"
 	"errors"
@@ -77,10 +77,8 @@ func ReadRunInfo(dir string) (*RunInfo, error) {
 	if err != nil {
 		return nil, err
 	}
-	dec := json.NewDecoder(bytes.NewReader(b))
-	dec.DisallowUnknownFields()
 	var info RunInfo
-	if err := dec.Decode(&info); err != nil {
+	if err := jsonx.DecodeStrict(b, &info); err != nil {
 		return nil, fmt.Errorf("%s: not a cohort run: %v", path, err)
 	}
 	if info.Format != runFormatV1 {

@@ -1,9 +1,7 @@
 package cohort
 
 import (
-	"bytes"
 	"encoding/csv"
-	"encoding/json"
 	"fmt"
 	"io"
 	"math"
@@ -85,10 +83,8 @@ func Collect(info *RunInfo, recs []jobs.Record, shard jobs.Shard) (*Table, error
 		case r.Status == jobs.Failed:
 			row.Status, row.Error, row.Seconds = StatusFailed, r.Error, r.Seconds
 		default:
-			dec := json.NewDecoder(bytes.NewReader(r.Result))
-			dec.DisallowUnknownFields()
 			var res Result
-			if err := dec.Decode(&res); err != nil {
+			if err := jsonx.DecodeStrict(r.Result, &res); err != nil {
 				return nil, fmt.Errorf("result of acquisition %q: %v", m.ID, err)
 			}
 			if res.ID != m.ID {

@@ -5,12 +5,8 @@ import (
 	"errors"
 	"fmt"
 	"io"
-	"os"
-	"os/signal"
 	"path/filepath"
 	"strings"
-	"sync"
-	"syscall"
 	"time"
 
 	"celerity/bench"
@@ -84,26 +80,8 @@ func (c *BenchRunCmd) Run(g *Globals) error {
 		}
 		ext = append(ext, e)
 	}
-	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
-	finished := make(chan struct{})
-	var watch sync.WaitGroup
-	watch.Add(1)
-	go func() {
-		defer watch.Done()
-		select {
-		case <-ctx.Done():
-			// the cases in progress stop at their next estimator (external
-			// ones at once); a second interrupt ends the process
-			stop()
-			fmt.Fprintln(g.stderr, "\ninterrupted: stopping the cases in progress (interrupt again to quit at once)")
-		case <-finished:
-		}
-	}()
-	defer func() {
-		close(finished)
-		watch.Wait()
-		stop()
-	}()
+	ctx, done := interruptible(g, "cases")
+	defer done()
 	bar := g.newProgress(len(s.Cases), "bench")
 	opt := bench.Options{Out: c.Out, Cache: c.Cache, Workers: c.Jobs, Shard: shard, Externals: ext, RetryFailed: c.RetryFailed,
 		Progress: func(p jobs.Progress) {

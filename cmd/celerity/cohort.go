@@ -122,7 +122,9 @@ func (c *CohortRunCmd) settings() (cohort.Settings, error) {
 }
 
 // interruptible returns a context cancelled by the first interrupt; a
-// second one ends the process (the default handler is restored).
+// second one ends the process (the default handler is restored). The work
+// in progress (bench cases, cohort acquisitions) stops at its next step,
+// external estimators at once. Call the returned function when done.
 func interruptible(g *Globals, what string) (context.Context, func()) {
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
 	finished := make(chan struct{})

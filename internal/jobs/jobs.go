@@ -1,7 +1,7 @@
 package jobs
 
 import (
-	"bytes"
+	"celerity/internal/jsonx"
 	"context"
 	"crypto/sha256"
 	"encoding/hex"
@@ -383,10 +383,8 @@ func ReadRecord(path string) (*Record, error) {
 	if len(b) > maxRecordBytes {
 		return nil, fmt.Errorf("%s: larger than %d MiB", path, maxRecordBytes>>20)
 	}
-	dec := json.NewDecoder(bytes.NewReader(b))
-	dec.DisallowUnknownFields()
 	var r Record
-	if err := dec.Decode(&r); err != nil {
+	if err := jsonx.DecodeStrict(b, &r); err != nil {
 		return nil, fmt.Errorf("%s: not a job record: %v", path, err)
 	}
 	if r.Format != RecordFormat {

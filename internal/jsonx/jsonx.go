@@ -3,10 +3,20 @@
 package jsonx
 
 import (
+	"bytes"
+	"encoding/json"
 	"fmt"
 	"math"
 	"strconv"
 )
+
+// DecodeStrict decodes the JSON value in b into v; a field that v does not
+// have is an error, as in every file and record celerity reads back.
+func DecodeStrict(b []byte, v any) error {
+	dec := json.NewDecoder(bytes.NewReader(b))
+	dec.DisallowUnknownFields()
+	return dec.Decode(v)
+}
 
 // Float is a float64 written as null when it is not finite.
 type Float float64

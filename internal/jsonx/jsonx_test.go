@@ -39,3 +39,14 @@ func TestFloatRoundTrip(t *testing.T) {
 		t.Error("a string read as a number")
 	}
 }
+
+// TestDecodeStrict: known fields decode; an unknown field is an error.
+func TestDecodeStrict(t *testing.T) {
+	var v struct{ A int }
+	if err := DecodeStrict([]byte(`{"A": 3}`), &v); err != nil || v.A != 3 {
+		t.Fatalf("known field: %v, %+v", err, v)
+	}
+	if err := DecodeStrict([]byte(`{"A": 3, "B": 1}`), &v); err == nil {
+		t.Fatal("unknown field accepted")
+	}
+}
