@@ -367,7 +367,7 @@ func runCase(ctx context.Context, cache string, c *Case, ests []Estimator) (*Cas
 	res := &CaseResult{Case: c.ID, GenerateSeconds: gen.Seconds(), TrueSpeedMPS: jsonx.Float(TrueSpeed(c, truth))}
 	res.ScreenRMSNS = jsonx.Float(rmsAboutMean(trueProf) * 1e9)
 	td, _, _ := metrics.Detrend(trueProf, x)
-	trueRMS := rmsOf(td)
+	trueRMS := metrics.RMS(td)
 
 	in := &Input{Dir: p.Acquisition, Acq: a, Channels: ch}
 	var im *imaging
@@ -408,7 +408,7 @@ func runCase(ctx context.Context, cache string, c *Case, ests []Estimator) (*Cas
 		}
 		if est.ProfileS != nil {
 			ed, _, _ := metrics.Detrend(est.ProfileS, x)
-			row.ProfileRMSNS = jsonx.Float(rmsOf(ed) * 1e9)
+			row.ProfileRMSNS = jsonx.Float(metrics.RMS(ed) * 1e9)
 			perr, pcorr := metrics.ProfileError(est.ProfileS, trueProf, x)
 			row.ProfileErrorNS = jsonx.Float(perr * 1e9)
 			if trueRMS > 0 {
@@ -455,17 +455,6 @@ func safeEstimate(ctx context.Context, e Estimator, in *Input) (est *Estimate, e
 		}
 	}()
 	return e.Estimate(ctx, in)
-}
-
-func rmsOf(v []float64) float64 {
-	if len(v) == 0 {
-		return math.NaN()
-	}
-	s := 0.0
-	for _, x := range v {
-		s += x * x
-	}
-	return math.Sqrt(s / float64(len(v)))
 }
 
 func rmsAboutMean(v []float64) float64 {

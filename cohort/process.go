@@ -214,7 +214,7 @@ func Process(ctx context.Context, id, dir string, s *Settings, pairs []metrics.R
 		}
 		res.CorrectedSpeedMPS = jsonx.Float(oc.Speed.SpeedMPS)
 		if oc.ProfileS != nil {
-			res.CorrectedProfileRMSS = jsonx.Float(rms(oc.ProfileS))
+			res.CorrectedProfileRMSS = jsonx.Float(metrics.RMS(oc.ProfileS))
 		}
 		if math.IsNaN(refDepth) && oc.Speed.Region.Z1 > oc.Speed.Region.Z0 {
 			refDepth = (oc.Speed.Region.Z0 + oc.Speed.Region.Z1) / 2
@@ -310,17 +310,6 @@ func meanSuffix(m map[string]float64, suffix string) jsonx.Float {
 		return jsonx.Float(math.NaN())
 	}
 	return jsonx.Float(s / float64(n))
-}
-
-func rms(v []float64) float64 {
-	if len(v) == 0 {
-		return math.NaN()
-	}
-	s := 0.0
-	for _, x := range v {
-		s += x * x
-	}
-	return math.Sqrt(s / float64(len(v)))
 }
 
 func dedupe(v []string) []string {

@@ -1,7 +1,6 @@
 package cohort
 
 import (
-	"celerity/internal/jsonx"
 	"context"
 	"encoding/json"
 	"errors"
@@ -15,6 +14,7 @@ import (
 
 	"celerity/internal/atomicfile"
 	"celerity/internal/jobs"
+	"celerity/internal/jsonx"
 	"celerity/metrics"
 )
 

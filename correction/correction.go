@@ -8,6 +8,7 @@ import (
 	"celerity/aberration"
 	"celerity/acq"
 	"celerity/internal/dsp"
+	"celerity/metrics"
 	"celerity/recon"
 	"celerity/speed"
 )
@@ -101,14 +102,6 @@ func elementX(els []acq.Element) []float64 {
 		x[i] = e.X
 	}
 	return x
-}
-
-func rmsOf(v []float64) float64 {
-	s := 0.0
-	for _, x := range v {
-		s += x * x
-	}
-	return math.Sqrt(s / float64(len(v)))
 }
 
 // Run estimates speed and profile by alternation: the speed is swept with
@@ -214,7 +207,7 @@ func Run(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Outcome, error) {
 		}
 		change = math.Sqrt(change / float64(n))
 		copy(prof, next)
-		round.ProfileRMSS, round.ProfileChangeS = rmsOf(prof), change
+		round.ProfileRMSS, round.ProfileChangeS = metrics.RMS(prof), change
 		out.Rounds = append(out.Rounds, round)
 		if r > 0 && math.Abs(sr.SpeedMPS-prevSpeed) < cfg.SpeedTolMPS && change < cfg.ProfileTolS {
 			prevSpeed = sr.SpeedMPS

@@ -6,6 +6,7 @@ import (
 	"testing"
 
 	"celerity/acq"
+	"celerity/metrics"
 	"celerity/recon"
 	"celerity/sim"
 )
@@ -129,7 +130,7 @@ func TestCorrectionRecoversIdeal(t *testing.T) {
 		}
 		t.Logf("depth confidence %s %v", oc.Depth.Confidence, oc.Depth.Notes)
 	}
-	t.Logf("speed %.1f m/s (%s), profile rms %.1f ns; truth mean speed to 30 mm %.1f", oc.Speed.SpeedMPS, oc.Speed.Confidence, rmsOf(oc.ProfileS)*1e9, truth.MeanSpeed(0.03))
+	t.Logf("speed %.1f m/s (%s), profile rms %.1f ns; truth mean speed to 30 mm %.1f", oc.Speed.SpeedMPS, oc.Speed.Confidence, metrics.RMS(oc.ProfileS)*1e9, truth.MeanSpeed(0.03))
 	for _, k := range []string{"lateral_width_mm", "axial_width_mm", "position_error_mm", "inclusion1_gcnr", "inclusion1_contrast_db"} {
 		t.Logf("%-24s before %.4f after %.4f oracle-delays %.4f ideal %.4f", k, ev.Before[k], ev.After[k], ev.Ideal[k], is[k])
 	}

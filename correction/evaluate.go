@@ -168,7 +168,7 @@ func Evaluate(a *acq.Acquisition, ch *recon.Channels, oc *Outcome, truth *acq.Tr
 			}
 			e, r := metrics.ProfileError(oc.ProfileS, truth.Screen.DelaysS, x)
 			td, _, _ := metrics.Detrend(truth.Screen.DelaysS, x)
-			ev.Truth["profile_rms_s"] = rmsOf(td)
+			ev.Truth["profile_rms_s"] = metrics.RMS(td)
 			ev.Truth["profile_error_rms_s"] = e
 			ev.Truth["profile_correlation"] = r
 		}

@@ -4,11 +4,11 @@ import (
 	"fmt"
 	"math"
 
-	"celerity/internal/dsp"
-	"celerity/internal/jsonx"
-
 	"celerity/aberration"
 	"celerity/acq"
+	"celerity/internal/dsp"
+	"celerity/internal/jsonx"
+	"celerity/metrics"
 	"celerity/recon"
 	"celerity/speed"
 )
@@ -51,7 +51,7 @@ func EstimateSpeed(a *acq.Acquisition, ch *recon.Channels, sc speed.SweepConfig)
 		return res, check, nil
 	}
 	els := a.Probe.Elements()
-	check.ProfileRMSS = rmsOf(RemoveQuadratic(ar.ProfileS, elementX(els)))
+	check.ProfileRMSS = metrics.RMS(RemoveQuadratic(ar.ProfileS, elementX(els)))
 	if check.ProfileRMSS <= AberratorThresholdS {
 		return res, check, nil
 	}

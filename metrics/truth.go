@@ -8,6 +8,18 @@ import (
 // SpeedError returns estimate - truth (m/s when both are speeds).
 func SpeedError(estimate, truth float64) float64 { return estimate - truth }
 
+// RMS returns the root mean square of v, NaN when v is empty.
+func RMS(v []float64) float64 {
+	if len(v) == 0 {
+		return math.NaN()
+	}
+	s := 0.0
+	for _, x := range v {
+		s += x * x
+	}
+	return math.Sqrt(s / float64(len(v)))
+}
+
 // Detrend removes the mean and the least-squares linear trend in x from p:
 //
 //	res[i] = p[i] - mean - slope (x[i] - mean(x)),

@@ -166,3 +166,13 @@ func TestTruthPanics(t *testing.T) {
 		}()
 	}
 }
+
+// TestRMS: the root mean square (definition), NaN for no values.
+func TestRMS(t *testing.T) {
+	if got := RMS([]float64{3, -4, 0, 0}); math.Abs(got-2.5) > 1e-15 {
+		t.Errorf("RMS = %g, want 2.5", got)
+	}
+	if !math.IsNaN(RMS(nil)) {
+		t.Error("RMS of nothing is not NaN")
+	}
+}

@@ -1,7 +1,6 @@
 package jobs
 
 import (
-	"celerity/internal/jsonx"
 	"context"
 	"crypto/sha256"
 	"encoding/hex"
@@ -18,6 +17,7 @@ import (
 	"time"
 
 	"celerity/internal/atomicfile"
+	"celerity/internal/jsonx"
 )
 
 // RecordFormat identifies record files.
