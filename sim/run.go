@@ -65,6 +65,9 @@ func simulateDirect(cfg *Config, workers int) ([]float32, error) {
 		return nil, fmt.Errorf("simulation needs %d MiB for channel data and accumulators, over the %d MiB cap",
 			(outBytes+int64(max(workers, blocks))*accBytes)>>20, maxBytes>>20)
 	}
+	if fuseFew && p.ne < blocks && int64(p.ne*blocks)*accBytes <= budget/2 {
+		return simulateFused(p, workers), nil
+	}
 	// Scatterer chunks bound the path table (12 bytes per scatterer and element).
 	chunk := len(cfg.Scatterers)
 	for chunk > 1 && int64(chunk)*int64(p.n)*12 > budget/2 {
@@ -140,6 +143,75 @@ func simulateDirect(cfg *Config, workers int) ([]float32, error) {
 	}
 	return out, nil
 }
+
+// simulateFused is simulateDirect for a few events with memory for an
+// accumulator per event and block: each worker traces the paths of a few
+// scatterers at a time into a small table that stays in cache, and deposits
+// them for every event at once. The sums are the same, in the same order, as
+// with the whole path table, so the records are too; what is saved is
+// writing and reading back the table (12 bytes per scatterer and element,
+// hundreds of MB for a large phantom), which costs more than tracing.
+func simulateFused(p *plan, workers int) []float32 {
+	cfg := p.cfg
+	accs := make([]*accumulator, p.ne*blocks) // [event][block]
+	var mu sync.Mutex
+	done := 0
+	queue(blocks, workers, func() func(b int) {
+		tr := newTracer(&cfg.Medium)
+		tau := make([]float32, fusedChunk*p.n)
+		ph := make([]complex64, fusedChunk*p.n)
+		amp := make([]float32, 0, fusedChunk)
+		deps := make([]*depositor, p.ne)
+		for e := range deps {
+			deps[e] = newDepositor(p, e)
+		}
+		return func(b int) {
+			for e := range p.ne {
+				accs[e*blocks+b] = newAcc(p)
+			}
+			lo, hi := b*len(cfg.Scatterers)/blocks, (b+1)*len(cfg.Scatterers)/blocks
+			for c0 := lo; c0 < hi; c0 += fusedChunk {
+				sc := cfg.Scatterers[c0:min(c0+fusedChunk, hi)]
+				amp = amp[:0]
+				for s := range sc {
+					p.fillPaths(tr, sc[s], tau[s*p.n:(s+1)*p.n], ph[s*p.n:(s+1)*p.n])
+					amp = append(amp, float32(sc[s].Amp))
+				}
+				for e, d := range deps {
+					d.chunk(accs[e*blocks+b], tau[:len(sc)*p.n], ph[:len(sc)*p.n], amp)
+				}
+			}
+			mu.Lock()
+			done++
+			d := done
+			mu.Unlock()
+			if cfg.Progress != nil {
+				cfg.Progress(d, blocks)
+			}
+		}
+	})
+	per := p.n * p.ns
+	out := make([]float32, p.ne*per)
+	for e := range p.ne {
+		a := accs[e*blocks : (e+1)*blocks]
+		// the blocks summed in order and filtered, a range of elements per worker
+		parallelRange(p.n, workers, func(lo, hi int) {
+			for b := 1; b < blocks; b++ {
+				a[0].addRows(a[b], lo, hi)
+			}
+			p.filterRows(a[0], out[e*per:(e+1)*per], lo, hi)
+		})
+	}
+	return out
+}
+
+// fuseFew lets simulateDirect take the fused route; tests switch it off to
+// compare the two routes.
+var fuseFew = true
+
+// fusedChunk is the number of scatterers whose paths simulateFused traces
+// at a time (about 100 KB of table for 128 elements).
+const fusedChunk = 64
 
 // blocks is the fixed number of scatterer blocks per event when events are
 // few; fixing it keeps the result independent of the number of workers.
