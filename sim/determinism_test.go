@@ -218,7 +218,7 @@ func TestDeterminismWorkerBoundary(t *testing.T) {
 
 // TestFusedMatchesTable: for a few events, tracing paths a chunk at a time
 // and depositing row by row (simulateFused) gives the same records, bit for
-// bit, as the whole path table deposited scatterer by scatterer; among the
+// bit, as the whole path table traced first; among the
 // cases a single-element event (one impulse per scatterer) and a scatterer
 // whose echoes run past the end of the record.
 func TestFusedMatchesTable(t *testing.T) {

@@ -106,8 +106,9 @@ func simulateDirect(cfg *Config, workers int) ([]float32, error) {
 			amp[i] = float32(s.Amp)
 		}
 		run := func(d *depositor, acc *accumulator, lo, hi int) {
-			for s := lo; s < hi; s++ {
-				d.scatterer(acc, tau[s*p.n:(s+1)*p.n], ph[s*p.n:(s+1)*p.n], amp[s])
+			for c := lo; c < hi; c += fusedChunk {
+				m := min(c+fusedChunk, hi)
+				d.chunk(acc, tau[c*p.n:m*p.n], ph[c*p.n:m*p.n], amp[c:m])
 			}
 		}
 		if p.ne >= blocks {

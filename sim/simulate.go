@@ -285,6 +285,7 @@ type depositor struct {
 	allT   []float32 // chunk: the trains of several scatterers
 	allA   []complex64
 	spans  []trainSpan
+	lones  []lone
 }
 
 func newDepositor(p *plan, e int) *depositor {
@@ -292,7 +293,7 @@ func newDepositor(p *plan, e int) *depositor {
 	return &depositor{p: p, e: e, groupT: make([]float32, 0, n), groupA: make([]complex64, 0, n)}
 }
 
-// scatterer deposits one scatterer's echoes on every receive element.
+// groups appends one scatterer's transmit impulses to groupT and groupA.
 //
 // In baseband, the wave from firing element i reaches the scatterer at
 // t_i = d_i + phi_i + tau_i as the impulse w_i g_i exp(-j w0 t_i) (the RF is
@@ -301,14 +302,7 @@ func newDepositor(p *plan, e int) *depositor {
 // impulse at their amplitude-weighted mean time, keeping every element's
 // phase exactly; only their envelopes are merged. The echo of each such
 // impulse reaches element j later by tau_j + phi_j with the extra phasor
-// A g_j exp(-j w0 (tau_j + phi_j)), A the scatterer amplitude.
-func (d *depositor) scatterer(acc *accumulator, tau []float32, ph []complex64, amp float32) {
-	d.groupT, d.groupA = d.groupT[:0], d.groupA[:0]
-	d.groups(tau, ph)
-	d.finish(acc, tau, ph, amp)
-}
-
-// groups appends one scatterer's transmit impulses to groupT and groupA.
+// A g_j exp(-j w0 (tau_j + phi_j)), A the scatterer amplitude (chunk).
 func (d *depositor) groups(tau []float32, ph []complex64) {
 	p := d.p
 	delays := p.delaysFine[d.e]
@@ -357,75 +351,95 @@ func (d *depositor) groups(tau []float32, ph []complex64) {
 	}
 }
 
-// finish deposits the impulses in groupT and groupA on every receive element.
-func (d *depositor) finish(acc *accumulator, tau []float32, ph []complex64, amp float32) {
-	p := d.p
-	d.interleave()
-	if len(d.groupT) == 0 {
-		return
-	}
-	acc0 := float32(p.acc0)
-	camp := complex(amp, 0)
-	if len(d.groupT) == 1 {
-		depositOne(acc, d.groupT[0]-acc0, d.groupA[0]*camp, tau, ph)
-		return
-	}
-	t := d.train(0, len(d.groupT))
-	for j := range p.n {
-		d.row(acc, j, t, tau[j], ph[j], camp, acc0)
-	}
-}
-
-// trainSpan is one scatterer's impulses gT[lo:hi], gA[lo:hi] in a
-// depositor's buffers, and the earliest and latest of their times.
+// trainSpan is the train of scatterer s of a chunk: impulses allT[lo:hi],
+// allA[lo:hi] of a depositor, the earliest and latest at tlo and thi.
 type trainSpan struct {
-	lo, hi   int
-	tlo, thi float32
+	s, lo, hi int
+	tlo, thi  float32
 }
 
-func (d *depositor) train(lo, hi int) trainSpan {
-	t := trainSpan{lo: lo, hi: hi, tlo: d.groupT[lo], thi: d.groupT[lo]}
-	for _, T := range d.groupT[lo:hi] {
-		t.tlo, t.thi = min(t.tlo, T), max(t.thi, T)
-	}
-	return t
+// lone is the single transmit impulse of scatterer s of a chunk (as in a
+// single-element event): time T (fine bins from accumulator bin 0) and
+// phasor a, the scatterer's amplitude included.
+type lone struct {
+	s int
+	T float32
+	a complex64
 }
 
-// row deposits the impulses of tr on receive element j, whose path has the
-// time tj (fine bins) and phasor phj; camp is the scatterer's amplitude.
-func (d *depositor) row(acc *accumulator, j int, tr trainSpan, tj float32, phj, camp complex64, acc0 float32) {
-	gT, gA := d.groupT[tr.lo:tr.hi], d.groupA[tr.lo:tr.hi]
-	gA = gA[:len(gT)]
-	row := acc.v[j*acc.n : (j+1)*acc.n]
-	maxK := float32(acc.n - 1)
-	if len(gT) == 1 {
-		// a single transmit impulse, as depositOne
-		t := (gT[0] - acc0) + tj
-		if !(t >= 0 && t < maxK) {
-			return
+// chunk deposits m scatterers (paths tau and ph, m x elements; amplitudes
+// amp) element by element: the trains of all m first, then on each receive
+// element the m scatterers in turn (those reached by a single transmit
+// impulse first), so that the part of the record that m neighbouring
+// scatterers touch stays in cache.
+func (d *depositor) chunk(acc *accumulator, tau []float32, ph []complex64, amp []float32) {
+	p := d.p
+	n := p.n
+	acc0 := float32(p.acc0)
+	d.spans, d.lones = d.spans[:0], d.lones[:0]
+	allT, allA := d.allT[:0], d.allA[:0]
+	for s := range amp {
+		d.groupT, d.groupA = d.groupT[:0], d.groupA[:0]
+		d.groups(tau[s*n:(s+1)*n], ph[s*n:(s+1)*n])
+		switch len(d.groupT) {
+		case 0:
+		case 1:
+			d.lones = append(d.lones, lone{s: s, T: d.groupT[0] - acc0, a: d.groupA[0] * complex(amp[s], 0)})
+		default:
+			d.interleave()
+			t := trainSpan{s: s, lo: len(allT), tlo: d.groupT[0], thi: d.groupT[0]}
+			for _, T := range d.groupT {
+				t.tlo, t.thi = min(t.tlo, T), max(t.thi, T)
+			}
+			allT = append(allT, d.groupT...)
+			allA = append(allA, d.groupA...)
+			t.hi = len(allT)
+			d.spans = append(d.spans, t)
 		}
-		a := gA[0] * camp
-		ar, ai := real(a), imag(a)
-		k := int(t)
-		f := t - float32(k)
-		pr, pi := real(phj), imag(phj)
-		vr := ar*pr - ai*pi
-		vi := ar*pi + ai*pr
-		c := row[k : k+2 : k+2]
-		fr, fi := vr*f, vi*f
-		c[0] += complex(vr-fr, vi-fi)
-		c[1] += complex(fr, fi)
-		return
 	}
-	pj := phj * camp
-	if pj == 0 {
-		return
+	d.allT, d.allA = allT, allA
+	allA = allA[:len(allT)]
+	maxK := float32(acc.n - 1)
+	for j := range n {
+		row := acc.v[j*acc.n : (j+1)*acc.n]
+		for _, o := range d.lones {
+			t := o.T + tau[o.s*n+j]
+			if !(t >= 0 && t < maxK) {
+				continue
+			}
+			k := int(t)
+			f := t - float32(k)
+			phj := ph[o.s*n+j]
+			ar, ai := real(o.a), imag(o.a)
+			pr, pi := real(phj), imag(phj)
+			vr := ar*pr - ai*pi
+			vi := ar*pi + ai*pr
+			c := row[k : k+2 : k+2]
+			fr, fi := vr*f, vi*f
+			c[0] += complex(vr-fr, vi-fi)
+			c[1] += complex(fr, fi)
+		}
+		for _, t := range d.spans {
+			pj := ph[t.s*n+j] * complex(amp[t.s], 0)
+			if pj == 0 {
+				continue
+			}
+			base := tau[t.s*n+j] - acc0
+			gT, gA := allT[t.lo:t.hi], allA[t.lo:t.hi]
+			if t.tlo+base >= 0 && t.thi+base < maxK {
+				depositFast(row, gT, gA, base, pj)
+				continue
+			}
+			depositEdge(row, gT, gA, base, pj)
+		}
 	}
-	base := tj - acc0
-	if tr.tlo+base >= 0 && tr.thi+base < maxK {
-		depositFast(row, gT, gA, base, pj)
-		return
-	}
+}
+
+// depositEdge is depositFast for a train that may run past either end of
+// the row: impulses outside it are dropped.
+func depositEdge(row []complex64, gT []float32, gA []complex64, base float32, pj complex64) {
+	maxK := float32(len(row) - 1)
+	gA = gA[:len(gT)]
 	for g, T := range gT {
 		t := T + base
 		if !(t >= 0 && t < maxK) {
@@ -439,49 +453,6 @@ func (d *depositor) row(acc *accumulator, j int, tr trainSpan, tj float32, phj, 
 		c[0] += v - vf
 		c[1] += vf
 	}
-}
-
-// chunk deposits m scatterers (paths tau and ph, m x elements; amplitudes
-// amp) element by element: the trains of all m first, then on each receive
-// element the m scatterers in turn. Each element's record receives the same
-// sums in the same order as from m calls of scatterer, but the part of the
-// record that m neighbouring scatterers touch stays in cache.
-func (d *depositor) chunk(acc *accumulator, tau []float32, ph []complex64, amp []float32) {
-	p := d.p
-	n := p.n
-	d.spans = d.spans[:0]
-	var allT []float32
-	var allA []complex64
-	allT, allA = d.allT[:0], d.allA[:0]
-	for s := range amp {
-		d.groupT, d.groupA = d.groupT[:0], d.groupA[:0]
-		d.groups(tau[s*n:(s+1)*n], ph[s*n:(s+1)*n])
-		d.interleave()
-		lo := len(allT)
-		allT = append(allT, d.groupT...)
-		allA = append(allA, d.groupA...)
-		d.spans = append(d.spans, trainSpan{lo: lo, hi: len(allT)})
-	}
-	d.allT, d.allA = allT, allA
-	// row reads the trains from groupT and groupA
-	d.groupT, d.allT = allT, d.groupT
-	d.groupA, d.allA = allA, d.groupA
-	for s, t := range d.spans {
-		if t.hi > t.lo {
-			d.spans[s] = d.train(t.lo, t.hi)
-		}
-	}
-	acc0 := float32(p.acc0)
-	for j := range n {
-		for s, t := range d.spans {
-			if t.hi == t.lo {
-				continue
-			}
-			d.row(acc, j, t, tau[s*n+j], ph[s*n+j], complex(amp[s], 0), acc0)
-		}
-	}
-	d.groupT, d.allT = d.allT, d.groupT
-	d.groupA, d.allA = d.allA, d.groupA
 }
 
 // interleave reorders the impulses as every interleaveStride-th one from the
@@ -513,32 +484,6 @@ const interleaveStride = 4
 
 func abs32(z complex64) float32 {
 	return float32(math.Sqrt(float64(real(z)*real(z) + imag(z)*imag(z))))
-}
-
-// depositOne deposits a single transmit impulse a at time T (fine bins from
-// accumulator bin 0) on every receive element j, at T + tau[j] with the
-// phasor a ph[j]: the whole work of a single-element event.
-func depositOne(acc *accumulator, T float32, a complex64, tau []float32, ph []complex64) {
-	n := acc.n
-	maxK := float32(n - 1)
-	ph = ph[:len(tau)]
-	ar, ai := real(a), imag(a)
-	for j, tj := range tau {
-		t := T + tj
-		if !(t >= 0 && t < maxK) {
-			continue
-		}
-		k := int(t)
-		f := t - float32(k)
-		pr, pi := real(ph[j]), imag(ph[j])
-		vr := ar*pr - ai*pi
-		vi := ar*pi + ai*pr
-		o := j*n + k
-		c := acc.v[o : o+2 : o+2]
-		fr, fi := vr*f, vi*f
-		c[0] += complex(vr-fr, vi-fi)
-		c[1] += complex(fr, fi)
-	}
 }
 
 // depositFast deposits the impulses gA * pj at times gT + base (fine bins,
