@@ -99,6 +99,14 @@ type Config struct {
 	// events' images (curvature.go), which those estimates leave poorly
 	// determined behind sparse compounding.
 	KeepCurvature bool
+	// GeometricTransmit applies a profile to a transmitted plane or
+	// diverging wave at the stationary element alone (recon.Corrected
+	// without a field). By default the wavelets of the elements within the
+	// pulse's first Fresnel zone are summed (recon.NewCorrectedField, with
+	// recon.FieldOf the probe), which follows a screen that varies within
+	// that zone.
+	GeometricTransmit bool
+	field             recon.TransmitField
 }
 
 // Quality holds coherence measures of the aperture data of the patches.
@@ -240,6 +248,9 @@ func Estimate(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Result, erro
 	if err := cfg.defaults(a); err != nil {
 		return nil, err
 	}
+	if !cfg.GeometricTransmit {
+		cfg.field = recon.FieldOf(&a.Probe)
+	}
 	nn := a.NumElements()
 	res := &Result{Method: cfg.Method.String()}
 	patches := cfg.Patches
@@ -297,7 +308,7 @@ func Estimate(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Result, erro
 	copy(prof, cfg.Initial) // checked by defaults
 	x := elementCoords(a)
 	gather := func(profile []float64) error {
-		m, err := recon.NewCorrected(cfg.Model, profile)
+		m, err := recon.NewCorrectedField(cfg.Model, profile, cfg.field)
 		if err != nil {
 			return err
 		}

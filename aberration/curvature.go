@@ -89,7 +89,7 @@ func refineCurvature(a *acq.Acquisition, ch *recon.Channels, cfg *Config, pds []
 		for j := range p {
 			p[j] = prof[j] + d*u[j]
 		}
-		m, err := recon.NewCorrected(cfg.Model, p)
+		m, err := recon.NewCorrectedField(cfg.Model, p, cfg.field)
 		if err != nil {
 			return 0, err
 		}

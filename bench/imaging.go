@@ -84,7 +84,7 @@ func newImaging(a *acq.Acquisition, ch *recon.Channels, truth *acq.Truth) (*imag
 		ideal = recon.NewHomogeneous(truth.SpeedMPS, els)
 	}
 	if truth.Screen != nil && len(truth.Screen.DelaysS) == len(els) {
-		if ideal, err = recon.NewCorrected(ideal, truth.Screen.DelaysS); err != nil {
+		if ideal, err = recon.NewCorrectedField(ideal, truth.Screen.DelaysS, recon.FieldOf(&a.Probe)); err != nil {
 			return nil, err
 		}
 	}
@@ -177,7 +177,7 @@ func (im *imaging) score(c float64, profile []float64) (imageScores, error) {
 	}
 	var model recon.DelayModel = recon.NewHomogeneous(c, im.a.Probe.Elements())
 	if profile != nil {
-		m, err := recon.NewCorrected(model, profile)
+		m, err := recon.NewCorrectedField(model, profile, recon.FieldOf(&im.a.Probe))
 		if err != nil {
 			return s, err
 		}

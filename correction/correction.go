@@ -236,7 +236,7 @@ func Run(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Outcome, error) {
 	if out.Layers != nil {
 		out.ProfileS = append([]float64(nil), prof...)
 	}
-	m, err := recon.NewCorrected(base, prof)
+	m, err := recon.NewCorrectedField(base, prof, recon.FieldOf(&a.Probe))
 	if err != nil {
 		return nil, err
 	}

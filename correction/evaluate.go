@@ -82,7 +82,7 @@ func Evaluate(a *acq.Acquisition, ch *recon.Channels, oc *Outcome, truth *acq.Tr
 		}
 		if truth.Screen != nil && len(truth.Screen.DelaysS) == len(els) {
 			var err error
-			if ideal, err = recon.NewCorrected(ideal, truth.Screen.DelaysS); err != nil {
+			if ideal, err = recon.NewCorrectedField(ideal, truth.Screen.DelaysS, recon.FieldOf(&a.Probe)); err != nil {
 				return nil, err
 			}
 		}

@@ -3,10 +3,12 @@ package recon
 import (
 	"fmt"
 	"math"
+	"math/cmplx"
 	"sort"
 	"strings"
 
 	"celerity/acq"
+	"celerity/internal/dsp"
 )
 
 // DelayModel gives the travel times a beamformer uses. Implementations here:
@@ -397,13 +399,21 @@ func (l *Layered) Transmit(w *Wave, x, z float64) (float64, float64) {
 // plane and diverging waves this is the geometric-acoustics view of a thin
 // screen at the array: it recovers the screen's delay of the wavefront along
 // each ray, not the reshaping of the transmitted beam by a screen that varies
-// within one Fresnel zone.
+// within one Fresnel zone. NewCorrectedField sums the wavelets of the
+// elements within that zone instead (fieldDelay); against the simulator's
+// element-by-element emission through a 40 ns, 2.5 mm screen it is within
+// 3 ns rms where the geometric view is 17 ns off (TestFieldTransmitDelay).
 type Corrected struct {
 	Base DelayModel
 	// Profile holds one correction per element, s (positive = later).
 	Profile []float64
-	xs      []float64
-	px      []float64 // profile sorted by x
+	// Field, set by NewCorrectedField, finds the transmit delay of plane and
+	// diverging waves from the wavelets of the firing elements near the
+	// stationary one instead of at the stationary element alone.
+	Field TransmitField
+	rot   []complex128 // exp(-j 2 pi f0 profile)
+	xs    []float64
+	px    []float64 // profile sorted by x
 }
 
 // NewCorrected returns base plus the per-element profile (s).
@@ -456,7 +466,145 @@ func (c *Corrected) Transmit(w *Wave, x, z float64) (float64, float64) {
 	if w.Front.Kind == acq.KindSingleElement {
 		return t + c.Profile[w.Front.Element], xs
 	}
-	return t + c.At(xs), xs
+	g := c.At(xs)
+	if c.rot != nil && (w.Front.Kind == acq.KindPlaneWave || w.Front.Kind == acq.KindDiverging) {
+		return t + c.fieldDelay(w, x, z, t, xs, g), xs
+	}
+	return t + g, xs
+}
+
+// TransmitField sets how Corrected finds the delay that the corrections
+// put on a transmitted plane or diverging wave.
+type TransmitField struct {
+	// CentreHz is the pulse's centre frequency; 0 keeps the geometric
+	// view (the correction at the stationary element).
+	CentreHz float64
+	// SigmaS is the std of the pulse's Gaussian envelope, s (> 0).
+	SigmaS float64
+}
+
+// FieldOf returns the transmit field of probe p's pulse: its centre
+// frequency and the envelope of a Gaussian pulse of its fractional
+// bandwidth (-6 dB; 0.6 when the probe does not give one).
+func FieldOf(p *acq.Probe) TransmitField {
+	bw := p.FractionalBandwidth
+	if !(bw > 0) {
+		bw = 0.6
+	}
+	sigmaF := p.CenterFrequencyHz * bw / (2 * math.Sqrt(2*math.Ln2))
+	return TransmitField{CentreHz: p.CenterFrequencyHz, SigmaS: 1 / (2 * math.Pi * sigmaF)}
+}
+
+// NewCorrectedField is NewCorrected with the transmit field f.
+func NewCorrectedField(base DelayModel, profile []float64, f TransmitField) (*Corrected, error) {
+	c, err := NewCorrected(base, profile)
+	if err != nil {
+		return nil, err
+	}
+	if f.CentreHz > 0 && f.SigmaS > 0 {
+		c.Field = f
+		c.rot = make([]complex128, len(profile))
+		for i, v := range profile {
+			s, co := math.Sincos(-2 * math.Pi * f.CentreHz * v)
+			c.rot[i] = complex(co, s)
+		}
+	}
+	return c, nil
+}
+
+// fieldDelay returns the delay that the corrections put on the plane or
+// diverging wave w at (x, z): the phase, at the centre frequency, of the
+// sum of the firing elements' wavelets with their corrections against the
+// sum without them, each wavelet weighted by its weight, its obliquity over
+// the square root of its path (a line source in the image plane) and the
+// pulse envelope at its arrival time relative to the wavefront's t. Only
+// the elements whose wavelets arrive within the envelope shape the
+// wavefront there (the first Fresnel zone), so a correction that varies
+// within that zone reshapes the wavefront rather than shifting it by the
+// value g at the stationary element xs. The result is unwrapped towards g,
+// and g is returned where the wavelets cancel.
+//
+// The arrival times grow away from the stationary element (Fermat), so the
+// sum walks outwards from it on either side until they leave the envelope.
+func (c *Corrected) fieldDelay(w *Wave, x, z, t, xs, g float64) float64 {
+	els := c.Base.Elements()
+	f0 := c.Field.CentreHz
+	invS := 1 / c.Field.SigmaS
+	reach := gaussReach * c.Field.SigmaS
+	order := w.order
+	k0 := sort.Search(len(order), func(k int) bool { return els[order[k]].X >= xs })
+	var f0s, f1s complex128
+	var mag float64
+	// add returns false once element order[k]'s wavelet is outside reach
+	hom, _ := c.Base.(*Homogeneous)
+	add := func(k int) bool {
+		i := order[k]
+		e := els[i]
+		dx, dz := x-e.X, z-e.Z
+		r := math.Sqrt(dx*dx + dz*dz)
+		var tau float64
+		if hom != nil {
+			tau = w.Delays[i] + r/hom.C
+		} else {
+			tau = w.Delays[i] + c.Base.Receive(i, x, z)
+		}
+		d := tau - t
+		if math.Abs(d) > reach {
+			return false
+		}
+		if r == 0 {
+			return true
+		}
+		cos := (dx*e.NX + dz*e.NZ) / r
+		if cos <= 0 {
+			return true
+		}
+		a := w.Weights[i] * cos / math.Sqrt(r) * gaussWeight(math.Abs(d)*invS)
+		v := complex(a, 0) * complex128(dsp.Phasor(-f0*d))
+		f0s += v
+		f1s += v * c.rot[i]
+		mag += math.Abs(a)
+		return true
+	}
+	for k := k0; k < len(order) && add(k); k++ {
+	}
+	for k := k0 - 1; k >= 0 && add(k); k-- {
+	}
+	if mag == 0 || cmplx.Abs(f0s) < 0.1*mag || cmplx.Abs(f1s) < 0.1*mag {
+		return g
+	}
+	// f1 = f0 exp(-j omega delay)
+	omega := 2 * math.Pi * f0
+	ph := cmplx.Phase(f0s * cmplx.Conj(f1s))
+	return g + math.Remainder(ph/omega-g, 2*math.Pi/omega)
+}
+
+// gaussReach is where fieldDelay's envelope weight stops, in sigmas
+// (exp(-4.5) = 1.1 % there).
+const gaussReach = 3
+
+// gaussTab holds exp(-u^2/2) for u = 0..gaussReach in gaussBins steps.
+const gaussBins = 512
+
+var gaussTab = func() []float64 {
+	t := make([]float64, gaussBins+2)
+	for k := range t {
+		u := float64(k) * gaussReach / gaussBins
+		t[k] = math.Exp(-u * u / 2)
+	}
+	return t
+}()
+
+// gaussWeight returns exp(-u^2/2) for 0 <= u <= gaussReach, interpolated
+// linearly in the table (error below 5e-6).
+func gaussWeight(u float64) float64 {
+	x := u * (gaussBins / gaussReach)
+	k := int(x)
+	if k >= gaussBins {
+		return gaussTab[gaussBins]
+	}
+	f := x - float64(k)
+	return gaussTab[k] + f*(gaussTab[k+1]-gaussTab[k])
 }
 
 // At returns the correction at position x along the array, interpolated

@@ -152,7 +152,7 @@ func (m *modelFlags) build(a *acq.Acquisition) (recon.DelayModel, error) {
 	if err != nil {
 		return nil, err
 	}
-	c, err := recon.NewCorrected(base, prof)
+	c, err := recon.NewCorrectedField(base, prof, recon.FieldOf(&a.Probe))
 	if err != nil {
 		return nil, fmt.Errorf("%s: %v", m.Profile, err)
 	}
