@@ -368,10 +368,12 @@ type lone struct {
 }
 
 // chunk deposits m scatterers (paths tau and ph, m x elements; amplitudes
-// amp) element by element: the trains of all m first, then on each receive
-// element the m scatterers in turn (those reached by a single transmit
-// impulse first), so that the part of the record that m neighbouring
-// scatterers touch stays in cache.
+// amp): the trains of all m first; then those reached by a single transmit
+// impulse (single-element events), scatterer by scatterer; then the others
+// element by element, on each receive element the m scatterers in turn, so
+// that the part of the record that m neighbouring scatterers touch stays in
+// cache. Every element's record receives the same sums in the same order
+// either way.
 func (d *depositor) chunk(acc *accumulator, tau []float32, ph []complex64, amp []float32) {
 	p := d.p
 	n := p.n
@@ -399,26 +401,15 @@ func (d *depositor) chunk(acc *accumulator, tau []float32, ph []complex64, amp [
 	}
 	d.allT, d.allA = allT, allA
 	allA = allA[:len(allT)]
+	// single impulses scatterer by scatterer: each element's record gets
+	// them in the same order as element by element, and the paths are read
+	// in the order they are stored
+	for _, o := range d.lones {
+		depositOne(acc, o.T, o.a, tau[o.s*n:(o.s+1)*n], ph[o.s*n:(o.s+1)*n])
+	}
 	maxK := float32(acc.n - 1)
 	for j := range n {
 		row := acc.v[j*acc.n : (j+1)*acc.n]
-		for _, o := range d.lones {
-			t := o.T + tau[o.s*n+j]
-			if !(t >= 0 && t < maxK) {
-				continue
-			}
-			k := int(t)
-			f := t - float32(k)
-			phj := ph[o.s*n+j]
-			ar, ai := real(o.a), imag(o.a)
-			pr, pi := real(phj), imag(phj)
-			vr := ar*pr - ai*pi
-			vi := ar*pi + ai*pr
-			c := row[k : k+2 : k+2]
-			fr, fi := vr*f, vi*f
-			c[0] += complex(vr-fr, vi-fi)
-			c[1] += complex(fr, fi)
-		}
 		for _, t := range d.spans {
 			pj := ph[t.s*n+j] * complex(amp[t.s], 0)
 			if pj == 0 {
@@ -484,6 +475,32 @@ const interleaveStride = 4
 
 func abs32(z complex64) float32 {
 	return float32(math.Sqrt(float64(real(z)*real(z) + imag(z)*imag(z))))
+}
+
+// depositOne deposits a single transmit impulse a at time T (fine bins from
+// accumulator bin 0) on every receive element j, at T + tau[j] with the
+// phasor a ph[j]: the whole work of a single-element event.
+func depositOne(acc *accumulator, T float32, a complex64, tau []float32, ph []complex64) {
+	n := acc.n
+	maxK := float32(n - 1)
+	ph = ph[:len(tau)]
+	ar, ai := real(a), imag(a)
+	for j, tj := range tau {
+		t := T + tj
+		if !(t >= 0 && t < maxK) {
+			continue
+		}
+		k := int(t)
+		f := t - float32(k)
+		pr, pi := real(ph[j]), imag(ph[j])
+		vr := ar*pr - ai*pi
+		vi := ar*pi + ai*pr
+		o := j*n + k
+		c := acc.v[o : o+2 : o+2]
+		fr, fi := vr*f, vi*f
+		c[0] += complex(vr-fr, vi-fi)
+		c[1] += complex(fr, fi)
+	}
 }
 
 // depositFast deposits the impulses gA * pj at times gT + base (fine bins,
