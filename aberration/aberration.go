@@ -225,6 +225,7 @@ func (cfg *Config) defaults(a *acq.Acquisition) error {
 type patchData struct {
 	patch  Patch
 	xs, zs []float64
+	grid   *recon.Grid // of xs, zs, made by the first gather
 	// c[m][j] = sum_p A_pj conj(A_p,j+m); e[j] = sum_p |A_pj|^2 over pixels
 	// where both are active; n[m][j] pixel counts.
 	c      [][]complex128
@@ -250,6 +251,7 @@ func Estimate(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Result, erro
 	}
 	if !cfg.GeometricTransmit {
 		cfg.field = recon.FieldOf(&a.Probe)
+		cfg.field.Cache = recon.NewFieldCache() // every gather re-forms the same pixels
 	}
 	nn := a.NumElements()
 	res := &Result{Method: cfg.Method.String()}
@@ -576,7 +578,7 @@ const maxPatchPixels = 40000
 // pixel-element-event products: about 0.1 to 0.2 s of delay-and-sum on two
 // cores, so that an estimate (up to two passes per round) takes a few
 // seconds.
-const gatherWork = 1e7
+const gatherWork = 2e7
 
 // defaultPixel returns the default pixel spacing (m): half a wavelength,
 // widened to sqrt(area / n) when the n = gatherWork / (elements * events)
@@ -597,11 +599,15 @@ func defaultPixel(patches []Patch, lambda float64, nn, nev int) float64 {
 // gather beamforms the patch with model m and accumulates the lagged
 // cross-products of its aperture data.
 func (pd *patchData) gather(a *acq.Acquisition, ch *recon.Channels, m recon.DelayModel, cfg *Config, lags int) error {
-	g, err := recon.Points(pd.xs, pd.zs)
-	if err != nil {
-		return err
+	if pd.grid == nil {
+		// one grid for every pass, which the transmit field cache knows it by
+		g, err := recon.Points(pd.xs, pd.zs)
+		if err != nil {
+			return err
+		}
+		pd.grid = &g
 	}
-	bf, err := recon.NewBeamformer(a, &g, m, recon.Config{FNumber: cfg.FNumber, Window: dsp.Window{Kind: dsp.Boxcar},
+	bf, err := recon.NewBeamformer(a, pd.grid, m, recon.Config{FNumber: cfg.FNumber, Window: dsp.Window{Kind: dsp.Boxcar},
 		Events: cfg.Events, Workers: cfg.Workers})
 	if err != nil {
 		return err

@@ -23,10 +23,14 @@ func BenchmarkEstimate(b *testing.B) {
 	}{
 		{"synthetic-aperture", saSpeckle},
 		{"plane-waves-11", pwSpeckle},
+		{"plane-waves-11-fine", pwSpeckle},
 	} {
 		b.Run(bc.name, func(b *testing.B) {
 			f := simulate(b, bc.spec)
 			cfg := aberration.Config{Model: f.model()}
+			if bc.name == "plane-waves-11-fine" {
+				cfg.PixelM = 0.25e-3
+			}
 			c0 := cpuSeconds()
 			for b.Loop() {
 				if _, err := aberration.Estimate(f.a, f.ch, cfg); err != nil {

@@ -251,8 +251,13 @@ func (bf *Beamformer) fillTile(t *tile, waves []*Wave, ap *apodizer) {
 	t.tx = make([]float32, ne*n)
 	t.txw = make([]complex64, ne*n)
 	t.on = make([]bool, ne)
+	cm, _ := bf.Model.(*Corrected)
 	for i, w := range waves {
 		single := w.Front.Kind == acq.KindSingleElement
+		var slots []*fieldTerms
+		if cm != nil {
+			slots = cm.fieldSlots(bf.Grid, w)
+		}
 		for k, p := range t.pix {
 			x, z := g.PX[p], g.PZ[p]
 			t.tx[i*n+k] = -1e9 // never inside the record
@@ -264,7 +269,12 @@ func (bf *Beamformer) fillTile(t *tile, waves []*Wave, ap *apodizer) {
 					continue
 				}
 			}
-			tau, _ := bf.Model.Transmit(w, x, z)
+			var tau float64
+			if slots != nil {
+				tau = cm.transmitPixel(w, bf.Grid, int(p), slots)
+			} else {
+				tau, _ = bf.Model.Transmit(w, x, z)
+			}
 			if math.IsInf(tau, 0) || math.IsNaN(tau) {
 				continue
 			}

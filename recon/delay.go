@@ -6,6 +6,7 @@ import (
 	"math/cmplx"
 	"sort"
 	"strings"
+	"sync"
 
 	"celerity/acq"
 	"celerity/internal/dsp"
@@ -481,6 +482,9 @@ type TransmitField struct {
 	CentreHz float64
 	// SigmaS is the std of the pulse's Gaussian envelope, s (> 0).
 	SigmaS float64
+	// Cache, if not nil, keeps what does not depend on the corrections
+	// between models that share it (FieldCache).
+	Cache *FieldCache
 }
 
 // FieldOf returns the transmit field of probe p's pulse: its centre
@@ -527,56 +531,155 @@ func NewCorrectedField(base DelayModel, profile []float64, f TransmitField) (*Co
 // The arrival times grow away from the stationary element (Fermat), so the
 // sum walks outwards from it on either side until they leave the envelope.
 func (c *Corrected) fieldDelay(w *Wave, x, z, t, xs, g float64) float64 {
+	return c.fieldFrom(c.fieldTerms(w, x, z, t, xs), g)
+}
+
+// fieldFrom is fieldDelay from the terms ft.
+func (c *Corrected) fieldFrom(ft *fieldTerms, g float64) float64 {
+	var f1s complex128
+	for k, i := range ft.idx {
+		f1s += complex128(ft.v[k]) * c.rot[i]
+	}
+	if ft.mag == 0 || cmplx.Abs(ft.f0) < 0.1*ft.mag || cmplx.Abs(f1s) < 0.1*ft.mag {
+		return g
+	}
+	// f1 = f0 exp(-j omega delay)
+	omega := 2 * math.Pi * c.Field.CentreHz
+	ph := cmplx.Phase(ft.f0 * cmplx.Conj(f1s))
+	return g + math.Remainder(ph/omega-g, 2*math.Pi/omega)
+}
+
+// fieldTerms are the part of fieldDelay that does not depend on the
+// corrections: the firing elements whose wavelets arrive within the
+// envelope at a point, each wavelet's weighted phasor, their sum and the
+// sum of the weights.
+type fieldTerms struct {
+	idx []int32
+	v   []complex64
+	f0  complex128
+	mag float64
+}
+
+func (c *Corrected) fieldTerms(w *Wave, x, z, t, xs float64) *fieldTerms {
 	els := c.Base.Elements()
 	f0 := c.Field.CentreHz
 	invS := 1 / c.Field.SigmaS
 	reach := gaussReach * c.Field.SigmaS
 	order := w.order
 	k0 := sort.Search(len(order), func(k int) bool { return els[order[k]].X >= xs })
-	var f0s, f1s complex128
-	var mag float64
-	// add returns false once element order[k]'s wavelet is outside reach
+	ft := &fieldTerms{}
+	var idxBuf [64]int32
+	var vBuf [64]complex64
+	ft.idx, ft.v = idxBuf[:0], vBuf[:0]
 	hom, _ := c.Base.(*Homogeneous)
-	add := func(k int) bool {
-		i := order[k]
-		e := els[i]
-		dx, dz := x-e.X, z-e.Z
-		r := math.Sqrt(dx*dx + dz*dz)
-		var tau float64
-		if hom != nil {
-			tau = w.Delays[i] + r/hom.C
-		} else {
-			tau = w.Delays[i] + c.Base.Receive(i, x, z)
-		}
-		d := tau - t
-		if math.Abs(d) > reach {
-			return false
-		}
-		if r == 0 {
-			return true
-		}
-		cos := (dx*e.NX + dz*e.NZ) / r
-		if cos <= 0 {
-			return true
-		}
-		a := w.Weights[i] * cos / math.Sqrt(r) * gaussWeight(math.Abs(d)*invS)
-		v := complex(a, 0) * complex128(dsp.Phasor(-f0*d))
-		f0s += v
-		f1s += v * c.rot[i]
-		mag += math.Abs(a)
-		return true
+	invC := 0.0
+	if hom != nil {
+		invC = 1 / hom.C
 	}
-	for k := k0; k < len(order) && add(k); k++ {
+	// the elements from the stationary one outwards, right then left
+	for pass := range 2 {
+		k, step := k0, 1
+		if pass == 1 {
+			k, step = k0-1, -1
+		}
+		for ; k >= 0 && k < len(order); k += step {
+			i := order[k]
+			e := &els[i]
+			dx, dz := x-e.X, z-e.Z
+			r := math.Sqrt(dx*dx + dz*dz)
+			var tau float64
+			if hom != nil {
+				tau = w.Delays[i] + r*invC
+			} else {
+				tau = w.Delays[i] + c.Base.Receive(i, x, z)
+			}
+			d := tau - t
+			if math.Abs(d) > reach {
+				break
+			}
+			if r == 0 {
+				continue
+			}
+			inv := 1 / r
+			cos := (dx*e.NX + dz*e.NZ) * inv
+			if cos <= 0 {
+				continue
+			}
+			a := w.Weights[i] * cos * math.Sqrt(inv) * gaussWeight(math.Abs(d)*invS)
+			v := complex(float32(a), 0) * dsp.Phasor(-f0*d)
+			ft.idx = append(ft.idx, int32(i))
+			ft.v = append(ft.v, v)
+			ft.f0 += complex128(v)
+			ft.mag += math.Abs(a)
+		}
 	}
-	for k := k0 - 1; k >= 0 && add(k); k-- {
+	// exact-size copies (the buffers stay on the stack for the usual zone)
+	ft.idx = append([]int32(nil), ft.idx...)
+	ft.v = append([]complex64(nil), ft.v...)
+	return ft
+}
+
+// FieldCache keeps the part of the transmit field delays (TransmitField)
+// that does not depend on the corrections, per grid, wave and pixel, for
+// models that differ only in their corrections: an iterative estimate
+// re-forms the same grids with one profile after another. A cache serves
+// one base model and one acquisition's events, and only beamformers (which
+// ask by pixel); it is safe for their concurrent use.
+type FieldCache struct {
+	mu    sync.Mutex
+	grids map[fieldKey][]*fieldTerms
+}
+
+// fieldKey identifies a grid and a wave, by its firing delays (the event's
+// own slice).
+type fieldKey struct {
+	g *Grid
+	d *float64
+}
+
+// NewFieldCache returns an empty cache.
+func NewFieldCache() *FieldCache { return &FieldCache{grids: map[fieldKey][]*fieldTerms{}} }
+
+// slots returns the grid's pixels' entries for wave w. Each entry is
+// written once, by the beamformer's tile that holds the pixel, and read
+// after the construction that wrote it has finished.
+func (fc *FieldCache) slots(g *Grid, w *Wave) []*fieldTerms {
+	k := fieldKey{g, &w.Delays[0]}
+	fc.mu.Lock()
+	defer fc.mu.Unlock()
+	s := fc.grids[k]
+	if s == nil {
+		s = make([]*fieldTerms, g.Len())
+		fc.grids[k] = s
 	}
-	if mag == 0 || cmplx.Abs(f0s) < 0.1*mag || cmplx.Abs(f1s) < 0.1*mag {
-		return g
+	return s
+}
+
+// transmitPixel is Transmit for pixel p of grid g, through the field
+// cache when the model has one.
+func (c *Corrected) transmitPixel(w *Wave, g *Grid, p int, slots []*fieldTerms) float64 {
+	x, z := g.PX[p], g.PZ[p]
+	if slots == nil {
+		t, _ := c.Transmit(w, x, z)
+		return t
 	}
-	// f1 = f0 exp(-j omega delay)
-	omega := 2 * math.Pi * f0
-	ph := cmplx.Phase(f0s * cmplx.Conj(f1s))
-	return g + math.Remainder(ph/omega-g, 2*math.Pi/omega)
+	t, xs := c.Base.Transmit(w, x, z)
+	ft := slots[p]
+	if ft == nil {
+		ft = c.fieldTerms(w, x, z, t, xs)
+		slots[p] = ft
+	}
+	return t + c.fieldFrom(ft, c.At(xs))
+}
+
+// fieldSlots returns the cache's entries for grid g and wave w when the
+// model's field delays apply to w and it has a cache, else nil.
+func (c *Corrected) fieldSlots(g *Grid, w *Wave) []*fieldTerms {
+	if c.rot == nil || c.Field.Cache == nil || len(w.Delays) == 0 ||
+		(w.Front.Kind != acq.KindPlaneWave && w.Front.Kind != acq.KindDiverging) {
+		return nil
+	}
+	return c.Field.Cache.slots(g, w)
 }
 
 // gaussReach is where fieldDelay's envelope weight stops, in sigmas
