@@ -91,3 +91,50 @@ func TestFieldTransmitDelay(t *testing.T) {
 		t.Errorf("field view %.2f ns rms from the simulated delays (geometric %.2f ns): want <= 5 ns and under half", eField*1e9, eGeo*1e9)
 	}
 }
+
+// TestFieldCache: images formed through a FieldCache, on the pass that
+// fills it and on later passes with other corrections, are the same bit for
+// bit as without it (the cache keeps only what does not depend on the
+// corrections).
+func TestFieldCache(t *testing.T) {
+	t.Parallel()
+	p := probeN(t, 64)
+	els := p.Elements()
+	pos := make([]float64, len(els))
+	for i, e := range els {
+		pos[i] = e.X
+	}
+	screen, err := sim.DrawScreen(rand.New(rand.NewPCG(5, 6)), pos, 30e-9, 0.003)
+	if err != nil {
+		t.Fatal(err)
+	}
+	a := simulate(t, simSpec{probe: p, events: acq.PlaneWaveSequence(&p, []float64{-5, 0, 5}, c1540), medium: sim.Homogeneous(c1540),
+		targets: [][2]float64{{0.001, 0.02}}, screen: screen, maxDepth: 0.024})
+	g := rectAround(t, 0.001, 0.02, 0.002, 0.002, 0.1e-3)
+	h := recon.NewHomogeneous(c1540, els)
+	fc := recon.NewFieldCache()
+	for pass, scale := range []float64{1, 0.5, -0.7} {
+		prof := make([]float64, len(screen))
+		for i, v := range screen {
+			prof[i] = scale * v
+		}
+		f := recon.FieldOf(&p)
+		plain, err := recon.NewCorrectedField(h, prof, f)
+		if err != nil {
+			t.Fatal(err)
+		}
+		f.Cache = fc
+		cached, err := recon.NewCorrectedField(h, prof, f)
+		if err != nil {
+			t.Fatal(err)
+		}
+		cfg := recon.Config{FNumber: 1}
+		want := form(t, a, &g, plain, cfg)
+		got := form(t, a, &g, cached, cfg)
+		for k := range want {
+			if got[k] != want[k] {
+				t.Fatalf("pass %d, pixel %d: %v through the cache, %v without", pass, k, got[k], want[k])
+			}
+		}
+	}
+}
