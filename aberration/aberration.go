@@ -279,7 +279,11 @@ func Estimate(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Result, erro
 		if cfg.Events != nil {
 			nev = len(cfg.Events)
 		}
-		cfg.PixelM = defaultPixel(patches, cfg.Model.FaceSpeed()/a.Probe.CenterFrequencyHz, nn, nev)
+		work := gatherWork
+		if acq.CompoundedWaves(a, cfg.Events) {
+			work *= compoundedWork
+		}
+		cfg.PixelM = defaultPixel(patches, cfg.Model.FaceSpeed()/a.Probe.CenterFrequencyHz, nn, nev, work)
 	}
 	pds := make([]*patchData, len(patches))
 	for i, p := range patches {
@@ -577,22 +581,30 @@ const maxPatchPixels = 40000
 // gatherWork is the default budget of one pass over the patches, in
 // pixel-element-event products: about 0.1 to 0.2 s of delay-and-sum on two
 // cores, so that an estimate (up to two passes per round) takes a few
-// seconds.
-const gatherWork = 2e7
+// seconds. Compounded plane or diverging waves get compoundedWork times
+// more: behind sparse compounding the aperture data carry grating-lobe
+// clutter, and the estimate's noise floor, smooth across the array and
+// about 2 ns on 11 plane waves at the base budget, falls with denser
+// pixels (docs/validation.md).
+const (
+	gatherWork     = 1e7
+	compoundedWork = 2
+)
 
 // defaultPixel returns the default pixel spacing (m): half a wavelength,
-// widened to sqrt(area / n) when the n = gatherWork / (elements * events)
-// pixels the budget allows do not fill the patches' area at that spacing.
-// The estimate's precision is set by the number of independent speckle
+// widened to sqrt(area / n) when the n = work / (elements * events) pixels
+// the budget allows do not fill the patches' area at that spacing. The
+// estimate's precision is set by the number of independent speckle
 // samples, one per resolution cell (about a wavelength by the pulse length);
-// a sequence of many events, which costs the most per pixel, also focuses
-// its aperture data best (higher coherence), so it needs the fewest.
-func defaultPixel(patches []Patch, lambda float64, nn, nev int) float64 {
+// a sequence of many single-element events, which costs the most per pixel,
+// also focuses its aperture data best (higher coherence), so it needs the
+// fewest.
+func defaultPixel(patches []Patch, lambda float64, nn, nev int, work float64) float64 {
 	area := 0.0
 	for _, p := range patches {
 		area += (p.X1 - p.X0) * (p.Z1 - p.Z0)
 	}
-	n := gatherWork / float64(max(1, nn*nev))
+	n := work / float64(max(1, nn*nev))
 	return math.Max(lambda/2, math.Sqrt(area/n))
 }
 
