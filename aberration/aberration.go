@@ -106,7 +106,12 @@ type Config struct {
 	// recon.FieldOf the probe), which follows a screen that varies within
 	// that zone.
 	GeometricTransmit bool
-	field             recon.TransmitField
+	// PixelWork sets the default pixel spacing (when PixelM is 0) by the
+	// pixel-element-event products one pass over the patches may cost; 0
+	// means BaseWork, twice that for compounded plane or diverging waves
+	// (whose estimate's noise floor falls with denser pixels).
+	PixelWork float64
+	field     recon.TransmitField
 }
 
 // Quality holds coherence measures of the aperture data of the patches.
@@ -202,6 +207,9 @@ func (cfg *Config) defaults(a *acq.Acquisition) error {
 	if cfg.FNumber == 0 {
 		cfg.FNumber = 0.6
 	}
+	if cfg.PixelWork < 0 || math.IsNaN(cfg.PixelWork) || math.IsInf(cfg.PixelWork, 0) {
+		return fmt.Errorf("aberration: pixel work must be positive and finite, got %g", cfg.PixelWork)
+	}
 	if cfg.PixelM < 0 || math.IsNaN(cfg.PixelM) || math.IsInf(cfg.PixelM, 0) {
 		return fmt.Errorf("aberration: pixel spacing must be positive and finite, got %g m", cfg.PixelM)
 	}
@@ -279,9 +287,12 @@ func Estimate(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Result, erro
 		if cfg.Events != nil {
 			nev = len(cfg.Events)
 		}
-		work := gatherWork
-		if acq.CompoundedWaves(a, cfg.Events) {
-			work *= compoundedWork
+		work := cfg.PixelWork
+		if work == 0 {
+			work = gatherWork
+			if acq.CompoundedWaves(a, cfg.Events) {
+				work *= compoundedWork
+			}
 		}
 		cfg.PixelM = defaultPixel(patches, cfg.Model.FaceSpeed()/a.Probe.CenterFrequencyHz, nn, nev, work)
 	}
@@ -587,9 +598,12 @@ const maxPatchPixels = 40000
 // about 2 ns on 11 plane waves at the base budget, falls with denser
 // pixels (docs/validation.md).
 const (
-	gatherWork     = 1e7
+	gatherWork     = BaseWork
 	compoundedWork = 2
 )
+
+// BaseWork is the base budget of one pass over the patches (Config.PixelWork).
+const BaseWork = 1e7
 
 // defaultPixel returns the default pixel spacing (m): half a wavelength,
 // widened to sqrt(area / n) when the n = work / (elements * events) pixels

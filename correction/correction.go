@@ -177,6 +177,11 @@ func Run(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Outcome, error) {
 			at = a.AssumedSpeedMPS
 		}
 		ac.Model = recon.NewHomogeneous(at, els)
+		if ac.PixelWork == 0 && ac.PixelM == 0 {
+			// the base pixel budget: the workflow runs several estimates
+			// and removes the profile's quadratic part anyway
+			ac.PixelWork = aberration.BaseWork
+		}
 		if r > 0 {
 			// refine from the previous profile
 			ac.Initial = append([]float64(nil), prof...)
@@ -286,6 +291,9 @@ func refineLayers(a *acq.Acquisition, ch *recon.Channels, cfg *Config, out *Outc
 	}
 	ac := cfg.Aberration
 	ac.Model = lm
+	if ac.PixelWork == 0 && ac.PixelM == 0 {
+		ac.PixelWork = aberration.BaseWork
+	}
 	ac.Initial = append([]float64(nil), prof...)
 	if ac.Iterations == 0 {
 		ac.Iterations = 3
