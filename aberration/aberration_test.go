@@ -274,6 +274,8 @@ func TestBadInput(t *testing.T) {
 		{"infinite patch", aberration.Config{Model: model, Patches: []aberration.Patch{{X0: -2e-3, X1: math.Inf(1), Z0: 8e-3, Z1: 12e-3}}}, "want finite"},
 		{"patch too fine", aberration.Config{Model: model, Patches: []aberration.Patch{patch}, PixelM: 1e-6}, "pixels at"},
 		{"negative pixel", aberration.Config{Model: model, PixelM: -1}, "pixel spacing must be positive"},
+		{"negative pixel work", aberration.Config{Model: model, PixelWork: -1}, "pixel work must be positive"},
+		{"NaN pixel work", aberration.Config{Model: model, PixelWork: math.NaN()}, "pixel work must be positive"},
 		{"unknown method", aberration.Config{Model: model, Method: aberration.Method(9)}, "unknown method 9"},
 		{"max lag", aberration.Config{Model: model, MaxLag: 16}, "max lag 16 outside 1..15"},
 		{"iterations", aberration.Config{Model: model, Iterations: 101}, "iterations must be between 1 and 100"},
