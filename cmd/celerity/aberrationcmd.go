@@ -22,12 +22,13 @@ import (
 type AberrationCmd struct {
 	Dir string `arg:"" help:"Acquisition folder." type:"existingdir" placeholder:"DIR"`
 	modelFlags
-	Patches    string `help:"Isoplanatic patches in mm, x0:x1,z0:z1 separated by semicolons, e.g. --patches='-19:-6,15:35;-6:6,15:35' (default: three side by side across the array)." placeholder:"LIST"`
-	Method     string `help:"Estimator: beamsum (each element against the beamformed sum), pairs (least squares over many element pairs) or neighbour (integrated neighbour differences)." default:"beamsum" enum:"beamsum,pairs,neighbour"`
-	Iterations int    `help:"Largest number of correct / re-form / re-estimate rounds." default:"6"`
-	Out        string `help:"Output folder to create: profile.csv, profile.npy, profile.png." placeholder:"OUT"`
-	Force      bool   `help:"Replace an existing output folder."`
-	JSON       bool   `name:"json" help:"Print the result as one JSON object on stdout."`
+	Patches    string  `help:"Isoplanatic patches in mm, x0:x1,z0:z1 separated by semicolons, e.g. --patches='-19:-6,15:35;-6:6,15:35' (default: three side by side across the array)." placeholder:"LIST"`
+	Method     string  `help:"Estimator: beamsum (each element against the beamformed sum), pairs (least squares over many element pairs) or neighbour (integrated neighbour differences)." default:"beamsum" enum:"beamsum,pairs,neighbour"`
+	Iterations int     `help:"Largest number of correct / re-form / re-estimate rounds." default:"6"`
+	PixelMM    float64 `name:"pixel-mm" help:"Pixel spacing of the patches in mm (default: half a wavelength, widened to bound the work per pass). Finer pixels lower the estimate's noise floor behind sparse plane-wave compounding, at a cost in time." placeholder:"MM"`
+	Out        string  `help:"Output folder to create: profile.csv, profile.npy, profile.png." placeholder:"OUT"`
+	Force      bool    `help:"Replace an existing output folder."`
+	JSON       bool    `name:"json" help:"Print the result as one JSON object on stdout."`
 }
 
 // Help is the long help.
@@ -41,16 +42,22 @@ the same across the field (isoplanatic). On three or more plane or diverging wav
 profile's curvature, which the element-by-element estimate leaves poorly determined, is then
 set by the coherence of the events' images.
 
-The correction applies on receive and, for each firing element, on transmit: exactly for
-synthetic-aperture data, and for plane and diverging waves through the element whose wavelet
-defines the wavefront at each pixel (a geometric-acoustics approximation that cannot undo the
-reshaping of the transmitted beam by errors that vary within one Fresnel zone).`
+The correction applies on receive and on transmit: exactly for synthetic-aperture data (the
+firing element's own correction); for plane and diverging waves through the sum of the firing
+elements' wavelets that arrive within the pulse envelope at each pixel (the first Fresnel zone),
+at the centre frequency, which follows a screen that varies within that zone.
+
+celerity is a research and quality-assurance tool, not a medical device, and is not for
+diagnosis or treatment decisions.`
 }
 
 // Validate checks flags.
 func (c *AberrationCmd) Validate() error {
 	if c.Iterations < 1 || c.Iterations > 100 {
 		return fmt.Errorf("--iterations must be between 1 and 100")
+	}
+	if !(c.PixelMM >= 0 && c.PixelMM <= 10) {
+		return fmt.Errorf("--pixel-mm must be between 0 (automatic) and 10 mm, got %g", c.PixelMM)
 	}
 	return c.modelFlags.validate(false)
 }
@@ -125,7 +132,7 @@ func (c *AberrationCmd) Run(g *Globals) error {
 	if err != nil {
 		return err
 	}
-	cfg := aberration.Config{Model: model, Method: method, Iterations: c.Iterations}
+	cfg := aberration.Config{Model: model, Method: method, Iterations: c.Iterations, PixelM: c.PixelMM * 1e-3}
 	if c.Patches != "" {
 		if cfg.Patches, err = parsePatches(c.Patches); err != nil {
 			return fmt.Errorf("--patches: %v", err)
