@@ -3,7 +3,6 @@ package recon_test
 import (
 	"fmt"
 	"math"
-	"math/rand/v2"
 	"path/filepath"
 	"testing"
 
@@ -280,17 +279,10 @@ func TestCorrectedRestoresFocus(t *testing.T) {
 	t.Parallel()
 	p := probeN(t, 64)
 	els := p.Elements()
-	pos := make([]float64, len(els))
-	for i, e := range els {
-		pos[i] = e.X
-	}
 	// 40 ns rms with 3 mm correlation length: between the chest-wall
 	// (21 ns, 2.5 mm; Hinkelman et al. 1997) and abdominal-wall
 	// (tens of ns, 3-6 mm, from memory) aberrators of CHECKS.md.
-	screen, err := sim.DrawScreen(rand.New(rand.NewPCG(1, 2)), pos, 40e-9, 0.003)
-	if err != nil {
-		t.Fatal(err)
-	}
+	screen := drawScreen(t, p, 40e-9, 0.003, 1)
 	neg := make([]float64, len(screen))
 	for i, v := range screen {
 		neg[i] = -v

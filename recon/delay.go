@@ -468,10 +468,16 @@ func (c *Corrected) Transmit(w *Wave, x, z float64) (float64, float64) {
 		return t + c.Profile[w.Front.Element], xs
 	}
 	g := c.At(xs)
-	if c.rot != nil && (w.Front.Kind == acq.KindPlaneWave || w.Front.Kind == acq.KindDiverging) {
+	if c.fieldApplies(w) {
 		return t + c.fieldDelay(w, x, z, t, xs, g), xs
 	}
 	return t + g, xs
+}
+
+// fieldApplies says whether the transmit field sum gives w's delays: a
+// model with a field, and a plane or diverging wave.
+func (c *Corrected) fieldApplies(w *Wave) bool {
+	return c.rot != nil && (w.Front.Kind == acq.KindPlaneWave || w.Front.Kind == acq.KindDiverging)
 }
 
 // TransmitField sets how Corrected finds the delay that the corrections
@@ -655,14 +661,10 @@ func (fc *FieldCache) slots(g *Grid, w *Wave) []*fieldTerms {
 	return s
 }
 
-// transmitPixel is Transmit for pixel p of grid g, through the field
-// cache when the model has one.
+// transmitPixel is Transmit for pixel p of grid g through the field cache's
+// entries slots (fieldSlots, not nil).
 func (c *Corrected) transmitPixel(w *Wave, g *Grid, p int, slots []*fieldTerms) float64 {
 	x, z := g.PX[p], g.PZ[p]
-	if slots == nil {
-		t, _ := c.Transmit(w, x, z)
-		return t
-	}
 	t, xs := c.Base.Transmit(w, x, z)
 	ft := slots[p]
 	if ft == nil {
@@ -675,8 +677,7 @@ func (c *Corrected) transmitPixel(w *Wave, g *Grid, p int, slots []*fieldTerms) 
 // fieldSlots returns the cache's entries for grid g and wave w when the
 // model's field delays apply to w and it has a cache, else nil.
 func (c *Corrected) fieldSlots(g *Grid, w *Wave) []*fieldTerms {
-	if c.rot == nil || c.Field.Cache == nil || len(w.Delays) == 0 ||
-		(w.Front.Kind != acq.KindPlaneWave && w.Front.Kind != acq.KindDiverging) {
+	if !c.fieldApplies(w) || c.Field.Cache == nil || len(w.Delays) == 0 {
 		return nil
 	}
 	return c.Field.Cache.slots(g, w)

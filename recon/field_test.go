@@ -3,7 +3,6 @@ package recon_test
 import (
 	"math"
 	"math/cmplx"
-	"math/rand/v2"
 	"testing"
 
 	"celerity/acq"
@@ -28,14 +27,7 @@ func TestFieldTransmitDelay(t *testing.T) {
 	t.Parallel()
 	p := probeN(t, 128)
 	els := p.Elements()
-	pos := make([]float64, len(els))
-	for i, e := range els {
-		pos[i] = e.X
-	}
-	screen, err := sim.DrawScreen(rand.New(rand.NewPCG(3, 4)), pos, 40e-9, 0.0025)
-	if err != nil {
-		t.Fatal(err)
-	}
+	screen := drawScreen(t, p, 40e-9, 0.0025, 3)
 	h := recon.NewHomogeneous(c1540, els)
 	geo, err := recon.NewCorrected(h, screen)
 	if err != nil {
@@ -100,14 +92,7 @@ func TestFieldCache(t *testing.T) {
 	t.Parallel()
 	p := probeN(t, 64)
 	els := p.Elements()
-	pos := make([]float64, len(els))
-	for i, e := range els {
-		pos[i] = e.X
-	}
-	screen, err := sim.DrawScreen(rand.New(rand.NewPCG(5, 6)), pos, 30e-9, 0.003)
-	if err != nil {
-		t.Fatal(err)
-	}
+	screen := drawScreen(t, p, 30e-9, 0.003, 5)
 	a := simulate(t, simSpec{probe: p, events: acq.PlaneWaveSequence(&p, []float64{-5, 0, 5}, c1540), medium: sim.Homogeneous(c1540),
 		targets: [][2]float64{{0.001, 0.02}}, screen: screen, maxDepth: 0.024})
 	g := rectAround(t, 0.001, 0.02, 0.002, 0.002, 0.1e-3)

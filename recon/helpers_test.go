@@ -2,6 +2,7 @@ package recon_test
 
 import (
 	"math"
+	"math/rand/v2"
 	"testing"
 
 	"celerity/acq"
@@ -29,6 +30,22 @@ func probeN(t testing.TB, n int) acq.Probe {
 	}
 	p.Count = n
 	return p
+}
+
+// drawScreen draws a phase screen over probe p's elements (sim.DrawScreen:
+// rms in s, correlation length in m) from the seed.
+func drawScreen(t testing.TB, p acq.Probe, rms, corr float64, seed uint64) []float64 {
+	t.Helper()
+	els := p.Elements()
+	pos := make([]float64, len(els))
+	for i, e := range els {
+		pos[i] = e.X
+	}
+	screen, err := sim.DrawScreen(rand.New(rand.NewPCG(seed, seed+1)), pos, rms, corr)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return screen
 }
 
 // lambda returns the centre wavelength of probe p at speed c.

@@ -78,18 +78,7 @@ func simulateDirect(cfg *Config, workers int) ([]float32, error) {
 	if len(cfg.Scatterers) > 0 {
 		nChunks = (len(cfg.Scatterers) + chunk - 1) / chunk
 	}
-	total := nChunks * p.ne
-	done := 0
-	var mu sync.Mutex
-	report := func() {
-		mu.Lock()
-		done++
-		d := done
-		mu.Unlock()
-		if cfg.Progress != nil {
-			cfg.Progress(d, total)
-		}
-	}
+	report := progressCounter(cfg.Progress, nChunks*p.ne)
 	per := p.n * p.ns
 	for c0 := 0; c0 < len(cfg.Scatterers); c0 += chunk {
 		sc := cfg.Scatterers[c0:min(c0+chunk, len(cfg.Scatterers))]
@@ -135,10 +124,7 @@ func simulateDirect(cfg *Config, workers int) ([]float32, error) {
 					run(d, accs[b], b*len(sc)/blocks, (b+1)*len(sc)/blocks)
 				}
 			})
-			for b := 1; b < blocks; b++ {
-				accs[0].add(accs[b])
-			}
-			p.filter(accs[0], out[e*per:(e+1)*per])
+			p.sumAndFilter(accs, out[e*per:(e+1)*per], workers)
 			report()
 		}
 	}
@@ -155,8 +141,7 @@ func simulateDirect(cfg *Config, workers int) ([]float32, error) {
 func simulateFused(p *plan, workers int) []float32 {
 	cfg := p.cfg
 	accs := make([]*accumulator, p.ne*blocks) // [event][block]
-	var mu sync.Mutex
-	done := 0
+	report := progressCounter(cfg.Progress, blocks)
 	queue(blocks, workers, func() func(b int) {
 		tr := newTracer(&cfg.Medium)
 		tau := make([]float32, fusedChunk*p.n)
@@ -182,28 +167,43 @@ func simulateFused(p *plan, workers int) []float32 {
 					d.chunk(accs[e*blocks+b], tau[:len(sc)*p.n], ph[:len(sc)*p.n], amp)
 				}
 			}
-			mu.Lock()
-			done++
-			d := done
-			mu.Unlock()
-			if cfg.Progress != nil {
-				cfg.Progress(d, blocks)
-			}
+			report()
 		}
 	})
 	per := p.n * p.ns
 	out := make([]float32, p.ne*per)
 	for e := range p.ne {
-		a := accs[e*blocks : (e+1)*blocks]
-		// the blocks summed in order and filtered, a range of elements per worker
-		parallelRange(p.n, workers, func(lo, hi int) {
-			for b := 1; b < blocks; b++ {
-				a[0].addRows(a[b], lo, hi)
-			}
-			p.filterRows(a[0], out[e*per:(e+1)*per], lo, hi)
-		})
+		p.sumAndFilter(accs[e*blocks:(e+1)*blocks], out[e*per:(e+1)*per], workers)
 	}
 	return out
+}
+
+// sumAndFilter adds the blocks' accumulators into the first, in order, and
+// filters the sum into dst, a range of elements per worker.
+func (p *plan) sumAndFilter(accs []*accumulator, dst []float32, workers int) {
+	parallelRange(p.n, workers, func(lo, hi int) {
+		for b := 1; b < len(accs); b++ {
+			accs[0].addRows(accs[b], lo, hi)
+		}
+		p.filterRows(accs[0], dst, lo, hi)
+	})
+}
+
+// progressCounter returns a function to call once per unit of work done,
+// which reports the count so far and total to f (when not nil); safe for
+// concurrent use.
+func progressCounter(f func(done, total int), total int) func() {
+	var mu sync.Mutex
+	done := 0
+	return func() {
+		mu.Lock()
+		done++
+		d := done
+		mu.Unlock()
+		if f != nil {
+			f(d, total)
+		}
+	}
 }
 
 // fuseFew lets simulateDirect take the fused route; tests switch it off to

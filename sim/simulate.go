@@ -262,8 +262,6 @@ func newAcc(p *plan) *accumulator {
 
 func (a *accumulator) clear() { clear(a.v) }
 
-func (a *accumulator) add(b *accumulator) { a.addRows(b, 0, len(a.v)/a.n) }
-
 // addRows adds b's records of elements lo..hi-1 to a's.
 func (a *accumulator) addRows(b *accumulator, lo, hi int) {
 	y := b.v[lo*b.n : hi*b.n]
@@ -450,9 +448,9 @@ func depositEdge(row []complex64, gT []float32, gA []complex64, base float32, pj
 // first, then from the second, and so on. Impulses next to each other in the
 // train fall in the same or neighbouring bins; depositing them one after the
 // other makes each read of a bin wait for the overlapping write just before
-// it, which costs more than the deposit itself. The order of the sums is part of the
-// model's definition (every path deposits in this order), so records do not
-// depend on the machine.
+// it, which costs more than the deposit itself. The order of the sums is
+// part of the model's definition (every path deposits in this order), so
+// records do not depend on the machine.
 func (d *depositor) interleave() {
 	n := len(d.groupT)
 	if n < 2*interleaveStride {
