@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"math"
 	"sort"
+	"sync"
 
 	"gonum.org/v1/gonum/mat"
 
@@ -111,7 +112,17 @@ type Config struct {
 	// means BaseWork, twice that for compounded plane or diverging waves
 	// (whose estimate's noise floor falls with denser pixels).
 	PixelWork float64
-	field     recon.TransmitField
+	// SubAperture is the number of adjacent elements whose aperture data
+	// are summed before the neighbour and many-pairs correlations (1: none;
+	// odd). 0 chooses it: 1 for synthetic aperture and single waves, for
+	// three or more compounded plane or diverging waves about a third of the
+	// coherence length of the compounded transmit's main lobe (see
+	// subaperture.go), which cancels the grating-lobe clutter that sets the
+	// phase of neighbour correlations behind sparse compounding.
+	SubAperture int
+	field       recon.TransmitField
+	// subAperture is SubAperture once chosen
+	subAperture int
 }
 
 // Quality holds coherence measures of the aperture data of the patches.
@@ -168,10 +179,13 @@ type Result struct {
 	Isoplanatic  bool    `json:"isoplanatic"`
 	// CurvatureFromEvents says that the quadratic part of the profile was
 	// set by the coherence of the events' images (see Config.KeepCurvature).
-	CurvatureFromEvents bool     `json:"curvature_from_events"`
-	Before              Quality  `json:"coherence_before"`
-	After               Quality  `json:"coherence_after"`
-	Notes               []string `json:"notes,omitempty"`
+	CurvatureFromEvents bool `json:"curvature_from_events"`
+	// SubAperture is the number of adjacent elements summed before the
+	// neighbour and many-pairs correlations (Config.SubAperture).
+	SubAperture int      `json:"sub_aperture_elements"`
+	Before      Quality  `json:"coherence_before"`
+	After       Quality  `json:"coherence_after"`
+	Notes       []string `json:"notes,omitempty"`
 	// RawS is the estimate before mean and trend removal.
 	RawS []float64 `json:"raw_s"`
 }
@@ -223,6 +237,9 @@ func (cfg *Config) defaults(a *acq.Acquisition) error {
 			}
 		}
 	}
+	if cfg.SubAperture < 0 || cfg.SubAperture > a.NumElements()/4 || (cfg.SubAperture > 0 && cfg.SubAperture%2 == 0) {
+		return fmt.Errorf("aberration: sub-aperture %d elements: want an odd number from 1 to %d, or 0 to choose", cfg.SubAperture, a.NumElements()/4)
+	}
 	if cfg.MinCoverage == 0 {
 		cfg.MinCoverage = 0.2
 	}
@@ -250,6 +267,11 @@ type patchData struct {
 	// rb[j] = sum |B_pj|^2 over the same pixels.
 	r      []complex128
 	ra, rb []float64
+	// q1[j] = sum_p A_pj conj(A_p,j+1) and its energies qa, qb, when the
+	// lagged products c are taken on sub-aperture sums (nil otherwise: c[1],
+	// ea[1] and eb[1] are these)
+	q1     []complex128
+	qa, qb []float64
 }
 
 // Estimate estimates the focusing-error profile of acquisition a.
@@ -296,6 +318,12 @@ func Estimate(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Result, erro
 		}
 		cfg.PixelM = defaultPixel(patches, cfg.Model.FaceSpeed()/a.Probe.CenterFrequencyHz, nn, nev, work)
 	}
+	x := elementCoords(a)
+	cfg.subAperture = cfg.SubAperture
+	if cfg.subAperture == 0 {
+		cfg.subAperture = subApertureFor(a, cfg.Events, patches, x)
+	}
+	res.SubAperture = cfg.subAperture
 	pds := make([]*patchData, len(patches))
 	for i, p := range patches {
 		// count before allocating: a fine spacing over a large patch is
@@ -323,14 +351,23 @@ func Estimate(a *acq.Acquisition, ch *recon.Channels, cfg Config) (*Result, erro
 	}
 	prof := make([]float64, nn)
 	copy(prof, cfg.Initial) // checked by defaults
-	x := elementCoords(a)
 	gather := func(profile []float64) error {
 		m, err := recon.NewCorrectedField(cfg.Model, profile, cfg.field)
 		if err != nil {
 			return err
 		}
-		for _, pd := range pds {
-			if err := pd.gather(a, ch, m, &cfg, lags); err != nil {
+		// The patches are gathered concurrently: each one's beamforming is
+		// parallel, its accumulation (a tenth to a quarter of a pass) is
+		// not, and overlaps the others' beamforming. Each patch's sums
+		// are its own, so the result does not depend on the order.
+		errs := make([]error, len(pds))
+		var wg sync.WaitGroup
+		for i, pd := range pds {
+			wg.Go(func() { errs[i] = pd.gather(a, ch, m, &cfg, lags) })
+		}
+		wg.Wait()
+		for _, err := range errs {
+			if err != nil {
 				return err
 			}
 		}
@@ -661,6 +698,7 @@ func (pd *patchData) gather(a *acq.Acquisition, ch *recon.Channels, m recon.Dela
 	pd.r = make([]complex128, nn)
 	pd.ra = make([]float64, nn)
 	pd.rb = make([]float64, nn)
+	pd.q1, pd.qa, pd.qb = nil, nil, nil
 	// per pixel: the active elements' values and energies, then the lagged
 	// products and the correlation of each element with the sum of the
 	// others (itself left out, whose own energy would pull every phase
@@ -668,6 +706,16 @@ func (pd *patchData) gather(a *acq.Acquisition, ch *recon.Channels, m recon.Dela
 	vr := make([]float64, nn)
 	vi := make([]float64, nn)
 	en := make([]float64, nn)
+	// the lagged products are taken on sub-aperture sums of k adjacent
+	// elements (k = 1: the elements themselves)
+	k := cfg.subAperture
+	fr, fi, fen := vr, vi, en
+	if k > 1 {
+		fr, fi, fen = make([]float64, nn), make([]float64, nn), make([]float64, nn)
+		pd.q1 = make([]complex128, nn)
+		pd.qa = make([]float64, nn)
+		pd.qb = make([]float64, nn)
+	}
 	for p := range pd.xs {
 		row := ap[p*nn : (p+1)*nn]
 		mk := mask[p*nn : (p+1)*nn]
@@ -688,17 +736,42 @@ func (pd *patchData) gather(a *acq.Acquisition, ch *recon.Channels, m recon.Dela
 		if cnt == 0 {
 			continue
 		}
-		for m := 1; m <= L; m++ {
-			c, ea, eb, n := pd.c[m], pd.ea[m], pd.eb[m], pd.n[m]
-			for j := 0; j+m < nn; j++ {
-				if !mk[j] || !mk[j+m] {
-					continue
+		if k > 1 {
+			// raw lag-one products for the quality measures
+			for j := 0; j+1 < nn; j++ {
+				if mk[j] && mk[j+1] {
+					pd.q1[j] += complex(vr[j]*vr[j+1]+vi[j]*vi[j+1], vi[j]*vr[j+1]-vr[j]*vi[j+1])
+					pd.qa[j] += en[j]
+					pd.qb[j] += en[j+1]
 				}
-				k := j + m
-				c[j] += complex(vr[j]*vr[k]+vi[j]*vi[k], vi[j]*vr[k]-vr[j]*vi[k])
-				ea[j] += en[j]
-				eb[j] += en[k]
-				n[j]++
+			}
+			subSums(fr, fi, fen, vr, vi, mk, k)
+		}
+		if lo, hi := first(mk), last(mk); hi-lo+1 == cnt {
+			// one run of active elements (the usual case): no tests
+			for m := 1; m <= L; m++ {
+				c, ea, eb, n := pd.c[m], pd.ea[m], pd.eb[m], pd.n[m]
+				for j := lo; j+m <= hi; j++ {
+					l := j + m
+					c[j] += complex(fr[j]*fr[l]+fi[j]*fi[l], fi[j]*fr[l]-fr[j]*fi[l])
+					ea[j] += fen[j]
+					eb[j] += fen[l]
+					n[j]++
+				}
+			}
+		} else {
+			for m := 1; m <= L; m++ {
+				c, ea, eb, n := pd.c[m], pd.ea[m], pd.eb[m], pd.n[m]
+				for j := 0; j+m < nn; j++ {
+					if !mk[j] || !mk[j+m] {
+						continue
+					}
+					l := j + m
+					c[j] += complex(fr[j]*fr[l]+fi[j]*fi[l], fi[j]*fr[l]-fr[j]*fi[l])
+					ea[j] += fen[j]
+					eb[j] += fen[l]
+					n[j]++
+				}
 			}
 		}
 		pd.cf[0] += sr*sr + si*si
@@ -874,10 +947,14 @@ func quality(pds []*patchData, omega float64, nn int) Quality {
 		if len(pd.c) < 2 {
 			continue
 		}
+		c1, ea, eb := pd.c[1], pd.ea[1], pd.eb[1]
+		if pd.q1 != nil {
+			c1, ea, eb = pd.q1, pd.qa, pd.qb
+		}
 		for j := 0; j+1 < nn; j++ {
-			c := pd.c[1][j]
+			c := c1[j]
 			num += real(c)
-			den += (pd.ea[1][j] + pd.eb[1][j]) / 2
+			den += (ea[j] + eb[j]) / 2
 			if pd.n[1][j] > 0 && c != 0 {
 				d := math.Atan2(imag(c), real(c)) / omega
 				w := float64(pd.n[1][j])
@@ -1043,4 +1120,46 @@ func unwrapAlong(d []float64, seen []bool, period float64) {
 		d[j] = v
 		prev = v
 	}
+}
+
+// subSums sets fr, fi to the sums of vr, vi over the k active elements
+// centred on each active element (fewer at the ends of the active run), and
+// fen to their energies. Inactive elements get zero.
+func subSums(fr, fi, fen, vr, vi []float64, mk []bool, k int) {
+	h := k / 2
+	nn := len(vr)
+	for j := range nn {
+		fr[j], fi[j], fen[j] = 0, 0, 0
+		if !mk[j] {
+			continue
+		}
+		var sr, si float64
+		for i := max(0, j-h); i <= min(nn-1, j+h); i++ {
+			if mk[i] {
+				sr += vr[i]
+				si += vi[i]
+			}
+		}
+		fr[j], fi[j], fen[j] = sr, si, sr*sr+si*si
+	}
+}
+
+// first returns the index of the first true value of mk (len(mk) if none).
+func first(mk []bool) int {
+	for j, v := range mk {
+		if v {
+			return j
+		}
+	}
+	return len(mk)
+}
+
+// last returns the index of the last true value of mk (-1 if none).
+func last(mk []bool) int {
+	for j := len(mk) - 1; j >= 0; j-- {
+		if mk[j] {
+			return j
+		}
+	}
+	return -1
 }

@@ -22,13 +22,14 @@ import (
 type AberrationCmd struct {
 	Dir string `arg:"" help:"Acquisition folder." type:"existingdir" placeholder:"DIR"`
 	modelFlags
-	Patches    string  `help:"Isoplanatic patches in mm, x0:x1,z0:z1 separated by semicolons, e.g. --patches='-19:-6,15:35;-6:6,15:35' (default: three side by side across the array)." placeholder:"LIST"`
-	Method     string  `help:"Estimator: beamsum (each element against the beamformed sum), pairs (least squares over many element pairs) or neighbour (integrated neighbour differences)." default:"beamsum" enum:"beamsum,pairs,neighbour"`
-	Iterations int     `help:"Largest number of correct / re-form / re-estimate rounds." default:"6"`
-	PixelMM    float64 `name:"pixel-mm" help:"Pixel spacing of the patches in mm (default: half a wavelength, widened to bound the work per pass). Finer pixels lower the estimate's noise floor behind sparse plane-wave compounding, at a cost in time." placeholder:"MM"`
-	Out        string  `help:"Output folder to create: profile.csv, profile.npy, profile.png." placeholder:"OUT"`
-	Force      bool    `help:"Replace an existing output folder."`
-	JSON       bool    `name:"json" help:"Print the result as one JSON object on stdout."`
+	Patches     string  `help:"Isoplanatic patches in mm, x0:x1,z0:z1 separated by semicolons, e.g. --patches='-19:-6,15:35;-6:6,15:35' (default: three side by side across the array)." placeholder:"LIST"`
+	Method      string  `help:"Estimator: beamsum (each element against the beamformed sum), pairs (least squares over many element pairs) or neighbour (integrated neighbour differences)." default:"beamsum" enum:"beamsum,pairs,neighbour"`
+	Iterations  int     `help:"Largest number of correct / re-form / re-estimate rounds." default:"6"`
+	PixelMM     float64 `name:"pixel-mm" help:"Pixel spacing of the patches in mm (default: half a wavelength, widened to bound the work per pass). Finer pixels lower the estimate's noise floor behind sparse plane-wave compounding, at a cost in time." placeholder:"MM"`
+	SubAperture int     `name:"sub-aperture" help:"Adjacent elements summed before the pairs and neighbour correlations, odd (default: 1 for synthetic aperture and single waves; for compounded plane or diverging waves about a third of the coherence length of their main lobe, which cancels the grating-lobe clutter of sparse compounding)." placeholder:"N"`
+	Out         string  `help:"Output folder to create: profile.csv, profile.npy, profile.png." placeholder:"OUT"`
+	Force       bool    `help:"Replace an existing output folder."`
+	JSON        bool    `name:"json" help:"Print the result as one JSON object on stdout."`
 }
 
 // Help is the long help.
@@ -58,6 +59,9 @@ func (c *AberrationCmd) Validate() error {
 	}
 	if !(c.PixelMM >= 0 && c.PixelMM <= 10) {
 		return fmt.Errorf("--pixel-mm must be between 0 (automatic) and 10 mm, got %g", c.PixelMM)
+	}
+	if c.SubAperture < 0 || (c.SubAperture > 0 && c.SubAperture%2 == 0) {
+		return fmt.Errorf("--sub-aperture must be an odd number of elements, or 0 (automatic), got %d", c.SubAperture)
 	}
 	return c.modelFlags.validate(false)
 }
@@ -132,7 +136,7 @@ func (c *AberrationCmd) Run(g *Globals) error {
 	if err != nil {
 		return err
 	}
-	cfg := aberration.Config{Model: model, Method: method, Iterations: c.Iterations, PixelM: c.PixelMM * 1e-3}
+	cfg := aberration.Config{Model: model, Method: method, Iterations: c.Iterations, PixelM: c.PixelMM * 1e-3, SubAperture: c.SubAperture}
 	if c.Patches != "" {
 		if cfg.Patches, err = parsePatches(c.Patches); err != nil {
 			return fmt.Errorf("--patches: %v", err)

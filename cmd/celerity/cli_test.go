@@ -234,6 +234,9 @@ func TestCommandsEndToEnd(t *testing.T) {
 	if code, _, errs := runCLI(t, "aberration", dir, "--speed-mps", "1500", "--pixel-mm", "-0.1", "-q"); code == 0 || !strings.Contains(errs, "--pixel-mm") {
 		t.Errorf("aberration --pixel-mm -0.1: exit %d, %q", code, errs)
 	}
+	if code, _, errs := runCLI(t, "aberration", dir, "--speed-mps", "1500", "--sub-aperture", "4", "-q"); code == 0 || !strings.Contains(errs, "--sub-aperture") {
+		t.Errorf("aberration --sub-aperture 4: exit %d, %q", code, errs)
+	}
 	// the profile written as CSV feeds image --profile
 	if code, _, errs := runCLI(t, "image", dir, "--speed-mps", "1500", "--profile", filepath.Join(work, "ab", "profile.csv"), "--out", filepath.Join(work, "img2"), "-q"); code != 0 {
 		t.Errorf("image --profile: %d %s", code, errs)
