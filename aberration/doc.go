@@ -31,7 +31,12 @@
 // plane-wave compounding leaves grating-lobe echoes that lower the lag-one
 // coherence to about 0.1 even in clean speckle). So each beamsum round also
 // tries the pairs step (lag one in the first round) and keeps whichever
-// focuses the patches better.
+// focuses the patches better. Behind compounded plane or diverging waves the
+// neighbour and pairs correlations are taken between sums of a few adjacent
+// elements (Config.SubAperture, subaperture.go): a spatial low-pass across
+// the aperture that keeps the main lobe's echoes, coherent over millimetres
+// (van Cittert-Zernike), and cancels the grating lobes' clutter, whose phase
+// alternates from one element to the next.
 //
 // The mean and the linear trend of a step are removed before it is taken:
 // the data do not determine them, and they would otherwise wander with the
