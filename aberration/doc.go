@@ -31,7 +31,12 @@
 // plane-wave compounding leaves grating-lobe echoes that lower the lag-one
 // coherence to about 0.1 even in clean speckle). So each beamsum round also
 // tries the pairs step (lag one in the first round) and keeps whichever
-// focuses the patches better. Behind compounded plane or diverging waves the
+// focuses the patches better; from the second round its own candidate is the
+// mean of the two steps, whose noise is partly independent. After each
+// accepted round, jumps of more than half a period between neighbouring
+// elements are removed (a steering taken modulo a period focuses the centre
+// frequency as well as none; a body-wall screen changes far less than that
+// from one element to the next). Behind compounded plane or diverging waves the
 // neighbour and pairs correlations are taken between sums of a few adjacent
 // elements (Config.SubAperture, subaperture.go): a spatial low-pass across
 // the aperture that keeps the main lobe's echoes, coherent over millimetres
