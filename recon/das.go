@@ -226,15 +226,49 @@ func (bf *Beamformer) fillTile(t *tile, waves []*Wave, ap *apodizer) {
 	t.w = make([]complex64, bf.nn*n)
 	t.k0 = make([]int32, bf.nn)
 	t.k1 = make([]int32, bf.nn)
+	cm, _ := bf.Model.(*Corrected)
+	// A corrected model with a field cache takes the base model's receive
+	// delays and the weights from it: they do not change from one profile
+	// to the next (Corrected.Receive is the base delay plus the element's
+	// correction, summed the same way here).
+	var rc *rxTerms
+	if cm != nil && cm.Field.Cache != nil {
+		rc = cm.Field.Cache.receive(g, ap)
+		np := g.Len()
+		for _, p := range t.pix {
+			if rc.done[p] {
+				continue
+			}
+			x, z := g.PX[p], g.PZ[p]
+			for j := range bf.nn {
+				i := j*np + int(p)
+				rc.wt[i] = ap.weight(j, x, z)
+				if rc.wt[i] != 0 {
+					rc.tau[i] = cm.Base.Receive(j, x, z)
+				}
+			}
+			rc.done[p] = true
+		}
+	}
 	for j := range bf.nn {
 		lo, hi := n, 0
 		for k, p := range t.pix {
-			x, z := g.PX[p], g.PZ[p]
-			wt := ap.weight(j, x, z)
-			if wt == 0 {
-				continue
+			var wt, tau float64
+			if rc != nil {
+				i := j*g.Len() + int(p)
+				wt = rc.wt[i]
+				if wt == 0 {
+					continue
+				}
+				tau = rc.tau[i] + cm.Profile[j]
+			} else {
+				x, z := g.PX[p], g.PZ[p]
+				wt = ap.weight(j, x, z)
+				if wt == 0 {
+					continue
+				}
+				tau = bf.Model.Receive(j, x, z)
 			}
-			tau := bf.Model.Receive(j, x, z)
 			if math.IsInf(tau, 0) || math.IsNaN(tau) {
 				continue
 			}
@@ -251,7 +285,6 @@ func (bf *Beamformer) fillTile(t *tile, waves []*Wave, ap *apodizer) {
 	t.tx = make([]float32, ne*n)
 	t.txw = make([]complex64, ne*n)
 	t.on = make([]bool, ne)
-	cm, _ := bf.Model.(*Corrected)
 	for i, w := range waves {
 		single := w.Front.Kind == acq.KindSingleElement
 		var slots []*fieldTerms

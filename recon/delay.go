@@ -634,6 +634,43 @@ func (c *Corrected) fieldTerms(w *Wave, x, z, t, xs float64) *fieldTerms {
 type FieldCache struct {
 	mu    sync.Mutex
 	grids map[fieldKey][]*fieldTerms
+	rx    map[rxKey]*rxTerms
+}
+
+// rxKey identifies a grid and the receive apodisation of a beamformer.
+type rxKey struct {
+	g      *Grid
+	fnum   float64
+	dscale float64
+	win    dsp.Window
+	cosMax float64
+}
+
+// rxTerms holds, per pixel of a grid and element, the base model's receive
+// delay and the apodisation weight ([element * pixels + pixel]), which do
+// not depend on the corrections; done marks the pixels filled. Each pixel
+// is filled once, by the beamformer's tile that holds it, and read after
+// the construction that filled it has finished.
+type rxTerms struct {
+	tau, wt []float64
+	done    []bool
+}
+
+// receive returns the receive entries of grid g for apodizer ap.
+func (fc *FieldCache) receive(g *Grid, ap *apodizer) *rxTerms {
+	k := rxKey{g, ap.fnum, ap.dscale, ap.win, ap.cosMax}
+	fc.mu.Lock()
+	defer fc.mu.Unlock()
+	if fc.rx == nil {
+		fc.rx = map[rxKey]*rxTerms{}
+	}
+	r := fc.rx[k]
+	if r == nil {
+		n := g.Len() * len(ap.els)
+		r = &rxTerms{tau: make([]float64, n), wt: make([]float64, n), done: make([]bool, g.Len())}
+		fc.rx[k] = r
+	}
+	return r
 }
 
 // fieldKey identifies a grid and a wave, by its firing delays (the event's

@@ -113,12 +113,15 @@ func TestFieldCache(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		cfg := recon.Config{FNumber: 1}
-		want := form(t, a, &g, plain, cfg)
-		got := form(t, a, &g, cached, cfg)
-		for k := range want {
-			if got[k] != want[k] {
-				t.Fatalf("pass %d, pixel %d: %v through the cache, %v without", pass, k, got[k], want[k])
+		// two apodisations on the same grid and cache: the receive
+		// entries are kept per apodisation
+		for _, cfg := range []recon.Config{{FNumber: 1}, {FNumber: 2}} {
+			want := form(t, a, &g, plain, cfg)
+			got := form(t, a, &g, cached, cfg)
+			for k := range want {
+				if got[k] != want[k] {
+					t.Fatalf("pass %d, F-number %g, pixel %d: %v through the cache, %v without", pass, cfg.FNumber, k, got[k], want[k])
+				}
 			}
 		}
 	}
