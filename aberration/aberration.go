@@ -782,31 +782,21 @@ func (pd *patchData) gather(a *acq.Acquisition, ch *recon.Channels, m recon.Dela
 			}
 			subSums(fr, fi, fen, vr, vi, mk, k)
 		}
-		if lo, hi := first(mk), last(mk); hi-lo+1 == cnt {
-			// one run of active elements (the usual case): no tests
-			for m := 1; m <= L; m++ {
-				c, ea, eb, n := pd.c[m], pd.ea[m], pd.eb[m], pd.n[m]
-				for j := lo; j+m <= hi; j++ {
-					l := j + m
-					c[j] += complex(fr[j]*fr[l]+fi[j]*fi[l], fi[j]*fr[l]-fr[j]*fi[l])
-					ea[j] += fen[j]
-					eb[j] += fen[l]
-					n[j]++
+		// the active elements are usually one run: only then can the mask
+		// tests be skipped
+		lo, hi := first(mk), last(mk)
+		run := hi-lo+1 == cnt
+		for m := 1; m <= L; m++ {
+			c, ea, eb, n := pd.c[m], pd.ea[m], pd.eb[m], pd.n[m]
+			for j := lo; j+m <= hi; j++ {
+				l := j + m
+				if !run && (!mk[j] || !mk[l]) {
+					continue
 				}
-			}
-		} else {
-			for m := 1; m <= L; m++ {
-				c, ea, eb, n := pd.c[m], pd.ea[m], pd.eb[m], pd.n[m]
-				for j := 0; j+m < nn; j++ {
-					if !mk[j] || !mk[j+m] {
-						continue
-					}
-					l := j + m
-					c[j] += complex(fr[j]*fr[l]+fi[j]*fi[l], fi[j]*fr[l]-fr[j]*fi[l])
-					ea[j] += fen[j]
-					eb[j] += fen[l]
-					n[j]++
-				}
+				c[j] += complex(fr[j]*fr[l]+fi[j]*fi[l], fi[j]*fr[l]-fr[j]*fi[l])
+				ea[j] += fen[j]
+				eb[j] += fen[l]
+				n[j]++
 			}
 		}
 		pd.cf[0] += sr*sr + si*si

@@ -232,9 +232,9 @@ func (bf *Beamformer) fillTile(t *tile, waves []*Wave, ap *apodizer) {
 	// to the next (Corrected.Receive is the base delay plus the element's
 	// correction, summed the same way here).
 	var rc *rxTerms
+	np := g.Len()
 	if cm != nil && cm.Field.Cache != nil {
 		rc = cm.Field.Cache.receive(g, ap)
-		np := g.Len()
 		for _, p := range t.pix {
 			if rc.done[p] {
 				continue
@@ -255,7 +255,7 @@ func (bf *Beamformer) fillTile(t *tile, waves []*Wave, ap *apodizer) {
 		for k, p := range t.pix {
 			var wt, tau float64
 			if rc != nil {
-				i := j*g.Len() + int(p)
+				i := j*np + int(p)
 				wt = rc.wt[i]
 				if wt == 0 {
 					continue
